@@ -1,0 +1,281 @@
+using System.Diagnostics;
+using System.Runtime.CompilerServices;
+using System.Runtime.Intrinsics;
+
+namespace Assay.Kernels;
+
+internal static unsafe partial class Kernels
+{
+    /// <summary>Output rows that one parallel work item covers, in micro-tiles.</summary>
+    private const int TilesPerTask = 8;
+
+    /// <summary>Below this many multiply-adds a GEMM runs on the calling thread.</summary>
+    private const long ParallelThreshold = 1 << 18;
+
+    /// <summary>
+    /// C = A·B + bias, or C += A·B + bias when <paramref name="accumulate"/> (a fused residual add). A is M × K
+    /// row-major with row stride <paramref name="lda"/>; C is M × N with row stride <paramref name="ldc"/>. Each output
+    /// element is one float32 dot product over k = 0 … K−1 in order, so results do not depend on the thread count.
+    /// </summary>
+    public static void Gemm(ReadOnlySpan<float> a, int m, int lda, PackedMatrix b, Span<float> c, int ldc,
+        bool accumulate, KernelVariant variant)
+    {
+        int k = b.Rows;
+        int n = b.Columns;
+        Debug.Assert(lda >= k && ldc >= n);
+        Debug.Assert(m == 0 || a.Length >= ((m - 1) * (long)lda) + k);
+        Debug.Assert(m == 0 || c.Length >= ((m - 1) * (long)ldc) + n);
+        if (m == 0)
+        {
+            return;
+        }
+
+        int mr = MicroRows(variant);
+        int rowTiles = (m + mr - 1) / mr;
+        int rowTasks = (rowTiles + TilesPerTask - 1) / TilesPerTask;
+        int panels = b.Panels;
+        int tasks = rowTasks * panels;
+
+        fixed (float* pa = a)
+        fixed (float* pc = c)
+        fixed (float* pb = b.Data)
+        fixed (float* pbias = b.Bias)
+        {
+            var job = new GemmJob(pa, m, lda, pb, k, n, pbias, pc, ldc, accumulate, variant, mr, rowTiles);
+            if ((long)m * n * k < ParallelThreshold || tasks == 1)
+            {
+                for (int t = 0; t < tasks; t++)
+                {
+                    job.Run(t / rowTasks, t % rowTasks);
+                }
+            }
+            else
+            {
+                // Panel-major order keeps one panel of B hot in cache while a worker walks its rows.
+                Parallel.For(0, tasks, t => job.Run(t / rowTasks, t % rowTasks));
+            }
+        }
+    }
+
+    private static int MicroRows(KernelVariant variant) => variant switch
+    {
+        KernelVariant.Vector512 => 6,
+        KernelVariant.Vector256 => 3,
+        _ => 4,
+    };
+
+    private readonly struct GemmJob
+    {
+        private readonly float* _a, _b, _bias, _c;
+        private readonly int _m, _lda, _k, _n, _ldc, _mr, _rowTiles;
+        private readonly bool _accumulate;
+        private readonly KernelVariant _variant;
+
+        public GemmJob(float* a, int m, int lda, float* b, int k, int n, float* bias, float* c, int ldc,
+            bool accumulate, KernelVariant variant, int mr, int rowTiles)
+        {
+            _a = a; _m = m; _lda = lda; _b = b; _k = k; _n = n; _bias = bias; _c = c; _ldc = ldc;
+            _accumulate = accumulate; _variant = variant; _mr = mr; _rowTiles = rowTiles;
+        }
+
+        public void Run(int panel, int rowTask)
+        {
+            const int W = PackedMatrix.PanelWidth;
+            float* bp = _b + ((long)panel * _k * W);
+            float* bias = _bias == null ? null : _bias + (panel * W);
+            int n0 = panel * W;
+            int width = Math.Min(W, _n - n0);
+            int firstTile = rowTask * TilesPerTask;
+            int lastTile = Math.Min(_rowTiles, firstTile + TilesPerTask);
+            float** rows = stackalloc float*[6];
+            float* scratch = stackalloc float[6 * W];
+            for (int tile = firstTile; tile < lastTile; tile++)
+            {
+                int r0 = tile * _mr;
+                int count = Math.Min(_mr, _m - r0);
+                for (int r = 0; r < _mr; r++)
+                {
+                    // Rows past M repeat the tile's first row; their results land in scratch and are dropped.
+                    rows[r] = _a + ((long)(r0 + (r < count ? r : 0)) * _lda);
+                }
+
+                float* cTile = _c + ((long)r0 * _ldc) + n0;
+                if (count == _mr && width == W)
+                {
+                    Micro(rows, bp, bias, cTile, _ldc);
+                }
+                else
+                {
+                    new Span<float>(scratch, 6 * W).Clear();
+                    if (_accumulate)
+                    {
+                        for (int r = 0; r < count; r++)
+                        {
+                            new ReadOnlySpan<float>(cTile + ((long)r * _ldc), width).CopyTo(new Span<float>(scratch + (r * W), width));
+                        }
+                    }
+                    Micro(rows, bp, bias, scratch, W);
+                    for (int r = 0; r < count; r++)
+                    {
+                        new ReadOnlySpan<float>(scratch + (r * W), width).CopyTo(new Span<float>(cTile + ((long)r * _ldc), width));
+                    }
+                }
+            }
+        }
+
+        [MethodImpl(MethodImplOptions.AggressiveInlining)]
+        private void Micro(float** rows, float* bp, float* bias, float* c, int ldc)
+        {
+            switch (_variant)
+            {
+                case KernelVariant.Vector512:
+                    MicroVector512(rows, bp, _k, bias, c, ldc, _accumulate);
+                    break;
+                case KernelVariant.Vector256:
+                    MicroVector256(rows, bp, _k, bias, c, ldc, _accumulate);
+                    MicroVector256(rows, bp + 32, _k, bias == null ? null : bias + 32, c + 32, ldc, _accumulate);
+                    break;
+                default:
+                    MicroScalar(rows, bp, _k, bias, c, ldc, _accumulate);
+                    break;
+            }
+        }
+    }
+
+    /// <summary>A 4 × 64 tile with scalar arithmetic, accumulating over k in order.</summary>
+    private static void MicroScalar(float** rows, float* bp, int k, float* bias, float* c, int ldc, bool accumulate)
+    {
+        const int W = PackedMatrix.PanelWidth;
+        float* acc = stackalloc float[4 * W];
+        for (int r = 0; r < 4; r++)
+        {
+            for (int j = 0; j < W; j++)
+            {
+                acc[(r * W) + j] = accumulate ? c[((long)r * ldc) + j] : 0f;
+            }
+        }
+        for (int p = 0; p < k; p++)
+        {
+            float* bRow = bp + ((long)p * W);
+            for (int r = 0; r < 4; r++)
+            {
+                float av = rows[r][p];
+                float* accRow = acc + (r * W);
+                for (int j = 0; j < W; j++)
+                {
+                    accRow[j] = MathF.FusedMultiplyAdd(av, bRow[j], accRow[j]);
+                }
+            }
+        }
+        for (int r = 0; r < 4; r++)
+        {
+            for (int j = 0; j < W; j++)
+            {
+                c[((long)r * ldc) + j] = acc[(r * W) + j] + (bias == null ? 0f : bias[j]);
+            }
+        }
+    }
+
+    /// <summary>A 3 × 32 tile in 256-bit vectors (12 accumulators); called twice per 64-wide panel.</summary>
+    private static void MicroVector256(float** rows, float* bp, int k, float* bias, float* c, int ldc, bool accumulate)
+    {
+        const int W = PackedMatrix.PanelWidth;
+        float* a0 = rows[0], a1 = rows[1], a2 = rows[2];
+        float* c0 = c, c1 = c + ldc, c2 = c + (2L * ldc);
+        Vector256<float> z = Vector256<float>.Zero;
+        Vector256<float> x00 = accumulate ? Vector256.Load(c0) : z, x01 = accumulate ? Vector256.Load(c0 + 8) : z;
+        Vector256<float> x02 = accumulate ? Vector256.Load(c0 + 16) : z, x03 = accumulate ? Vector256.Load(c0 + 24) : z;
+        Vector256<float> x10 = accumulate ? Vector256.Load(c1) : z, x11 = accumulate ? Vector256.Load(c1 + 8) : z;
+        Vector256<float> x12 = accumulate ? Vector256.Load(c1 + 16) : z, x13 = accumulate ? Vector256.Load(c1 + 24) : z;
+        Vector256<float> x20 = accumulate ? Vector256.Load(c2) : z, x21 = accumulate ? Vector256.Load(c2 + 8) : z;
+        Vector256<float> x22 = accumulate ? Vector256.Load(c2 + 16) : z, x23 = accumulate ? Vector256.Load(c2 + 24) : z;
+        for (int p = 0; p < k; p++)
+        {
+            float* bRow = bp + ((long)p * W);
+            Vector256<float> b0 = Vector256.Load(bRow), b1 = Vector256.Load(bRow + 8);
+            Vector256<float> b2 = Vector256.Load(bRow + 16), b3 = Vector256.Load(bRow + 24);
+            Vector256<float> v = Vector256.Create(a0[p]);
+            x00 = Vector256.FusedMultiplyAdd(v, b0, x00); x01 = Vector256.FusedMultiplyAdd(v, b1, x01);
+            x02 = Vector256.FusedMultiplyAdd(v, b2, x02); x03 = Vector256.FusedMultiplyAdd(v, b3, x03);
+            v = Vector256.Create(a1[p]);
+            x10 = Vector256.FusedMultiplyAdd(v, b0, x10); x11 = Vector256.FusedMultiplyAdd(v, b1, x11);
+            x12 = Vector256.FusedMultiplyAdd(v, b2, x12); x13 = Vector256.FusedMultiplyAdd(v, b3, x13);
+            v = Vector256.Create(a2[p]);
+            x20 = Vector256.FusedMultiplyAdd(v, b0, x20); x21 = Vector256.FusedMultiplyAdd(v, b1, x21);
+            x22 = Vector256.FusedMultiplyAdd(v, b2, x22); x23 = Vector256.FusedMultiplyAdd(v, b3, x23);
+        }
+        if (bias != null)
+        {
+            Vector256<float> y0 = Vector256.Load(bias), y1 = Vector256.Load(bias + 8);
+            Vector256<float> y2 = Vector256.Load(bias + 16), y3 = Vector256.Load(bias + 24);
+            x00 += y0; x01 += y1; x02 += y2; x03 += y3;
+            x10 += y0; x11 += y1; x12 += y2; x13 += y3;
+            x20 += y0; x21 += y1; x22 += y2; x23 += y3;
+        }
+        x00.Store(c0); x01.Store(c0 + 8); x02.Store(c0 + 16); x03.Store(c0 + 24);
+        x10.Store(c1); x11.Store(c1 + 8); x12.Store(c1 + 16); x13.Store(c1 + 24);
+        x20.Store(c2); x21.Store(c2 + 8); x22.Store(c2 + 16); x23.Store(c2 + 24);
+    }
+
+    /// <summary>A 6 × 64 tile in 512-bit vectors (24 accumulators, 4 panel loads and 6 broadcasts per k).</summary>
+    private static void MicroVector512(float** rows, float* bp, int k, float* bias, float* c, int ldc, bool accumulate)
+    {
+        const int W = PackedMatrix.PanelWidth;
+        float* a0 = rows[0], a1 = rows[1], a2 = rows[2], a3 = rows[3], a4 = rows[4], a5 = rows[5];
+        float* c0 = c, c1 = c + ldc, c2 = c + (2L * ldc), c3 = c + (3L * ldc), c4 = c + (4L * ldc), c5 = c + (5L * ldc);
+        Vector512<float> z = Vector512<float>.Zero;
+        Vector512<float> x00 = accumulate ? Vector512.Load(c0) : z, x01 = accumulate ? Vector512.Load(c0 + 16) : z;
+        Vector512<float> x02 = accumulate ? Vector512.Load(c0 + 32) : z, x03 = accumulate ? Vector512.Load(c0 + 48) : z;
+        Vector512<float> x10 = accumulate ? Vector512.Load(c1) : z, x11 = accumulate ? Vector512.Load(c1 + 16) : z;
+        Vector512<float> x12 = accumulate ? Vector512.Load(c1 + 32) : z, x13 = accumulate ? Vector512.Load(c1 + 48) : z;
+        Vector512<float> x20 = accumulate ? Vector512.Load(c2) : z, x21 = accumulate ? Vector512.Load(c2 + 16) : z;
+        Vector512<float> x22 = accumulate ? Vector512.Load(c2 + 32) : z, x23 = accumulate ? Vector512.Load(c2 + 48) : z;
+        Vector512<float> x30 = accumulate ? Vector512.Load(c3) : z, x31 = accumulate ? Vector512.Load(c3 + 16) : z;
+        Vector512<float> x32 = accumulate ? Vector512.Load(c3 + 32) : z, x33 = accumulate ? Vector512.Load(c3 + 48) : z;
+        Vector512<float> x40 = accumulate ? Vector512.Load(c4) : z, x41 = accumulate ? Vector512.Load(c4 + 16) : z;
+        Vector512<float> x42 = accumulate ? Vector512.Load(c4 + 32) : z, x43 = accumulate ? Vector512.Load(c4 + 48) : z;
+        Vector512<float> x50 = accumulate ? Vector512.Load(c5) : z, x51 = accumulate ? Vector512.Load(c5 + 16) : z;
+        Vector512<float> x52 = accumulate ? Vector512.Load(c5 + 32) : z, x53 = accumulate ? Vector512.Load(c5 + 48) : z;
+        for (int p = 0; p < k; p++)
+        {
+            float* bRow = bp + ((long)p * W);
+            Vector512<float> b0 = Vector512.Load(bRow), b1 = Vector512.Load(bRow + 16);
+            Vector512<float> b2 = Vector512.Load(bRow + 32), b3 = Vector512.Load(bRow + 48);
+            Vector512<float> v = Vector512.Create(a0[p]);
+            x00 = Vector512.FusedMultiplyAdd(v, b0, x00); x01 = Vector512.FusedMultiplyAdd(v, b1, x01);
+            x02 = Vector512.FusedMultiplyAdd(v, b2, x02); x03 = Vector512.FusedMultiplyAdd(v, b3, x03);
+            v = Vector512.Create(a1[p]);
+            x10 = Vector512.FusedMultiplyAdd(v, b0, x10); x11 = Vector512.FusedMultiplyAdd(v, b1, x11);
+            x12 = Vector512.FusedMultiplyAdd(v, b2, x12); x13 = Vector512.FusedMultiplyAdd(v, b3, x13);
+            v = Vector512.Create(a2[p]);
+            x20 = Vector512.FusedMultiplyAdd(v, b0, x20); x21 = Vector512.FusedMultiplyAdd(v, b1, x21);
+            x22 = Vector512.FusedMultiplyAdd(v, b2, x22); x23 = Vector512.FusedMultiplyAdd(v, b3, x23);
+            v = Vector512.Create(a3[p]);
+            x30 = Vector512.FusedMultiplyAdd(v, b0, x30); x31 = Vector512.FusedMultiplyAdd(v, b1, x31);
+            x32 = Vector512.FusedMultiplyAdd(v, b2, x32); x33 = Vector512.FusedMultiplyAdd(v, b3, x33);
+            v = Vector512.Create(a4[p]);
+            x40 = Vector512.FusedMultiplyAdd(v, b0, x40); x41 = Vector512.FusedMultiplyAdd(v, b1, x41);
+            x42 = Vector512.FusedMultiplyAdd(v, b2, x42); x43 = Vector512.FusedMultiplyAdd(v, b3, x43);
+            v = Vector512.Create(a5[p]);
+            x50 = Vector512.FusedMultiplyAdd(v, b0, x50); x51 = Vector512.FusedMultiplyAdd(v, b1, x51);
+            x52 = Vector512.FusedMultiplyAdd(v, b2, x52); x53 = Vector512.FusedMultiplyAdd(v, b3, x53);
+        }
+        if (bias != null)
+        {
+            Vector512<float> y0 = Vector512.Load(bias), y1 = Vector512.Load(bias + 16);
+            Vector512<float> y2 = Vector512.Load(bias + 32), y3 = Vector512.Load(bias + 48);
+            x00 += y0; x01 += y1; x02 += y2; x03 += y3;
+            x10 += y0; x11 += y1; x12 += y2; x13 += y3;
+            x20 += y0; x21 += y1; x22 += y2; x23 += y3;
+            x30 += y0; x31 += y1; x32 += y2; x33 += y3;
+            x40 += y0; x41 += y1; x42 += y2; x43 += y3;
+            x50 += y0; x51 += y1; x52 += y2; x53 += y3;
+        }
+        x00.Store(c0); x01.Store(c0 + 16); x02.Store(c0 + 32); x03.Store(c0 + 48);
+        x10.Store(c1); x11.Store(c1 + 16); x12.Store(c1 + 32); x13.Store(c1 + 48);
+        x20.Store(c2); x21.Store(c2 + 16); x22.Store(c2 + 32); x23.Store(c2 + 48);
+        x30.Store(c3); x31.Store(c3 + 16); x32.Store(c3 + 32); x33.Store(c3 + 48);
+        x40.Store(c4); x41.Store(c4 + 16); x42.Store(c4 + 32); x43.Store(c4 + 48);
+        x50.Store(c5); x51.Store(c5 + 16); x52.Store(c5 + 32); x53.Store(c5 + 48);
+    }
+}

