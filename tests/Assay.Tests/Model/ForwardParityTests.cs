@@ -1,0 +1,123 @@
+using System.Text.Json;
+using Assay.Fixtures;
+using Assay.Model;
+using Assay.Tests.Support;
+using Xunit.Abstractions;
+
+namespace Assay.Tests.Model;
+
+/// <summary>
+/// The forward pass against an independent numpy implementation (Debian python3-numpy, float64, run live:
+/// Reference/gpt2_numpy.py), which reads the same checkpoint files with its own safetensors parser. Every layer's
+/// hidden states and the logits must agree within atol 1e-4 + rtol 1e-4 (float32 engine vs float64 reference).
+/// </summary>
+public sealed class ForwardParityTests(ITestOutputHelper output)
+{
+    private const double Atol = 1e-4;
+    private const double Rtol = 1e-4;
+
+    public static readonly Dictionary<string, (CheckpointSpec Spec, int[] Lengths)> Cases = new()
+    {
+        // Five heads of width 8: a head count that is odd and a width (40) that is not a multiple of 16.
+        ["odd-heads-width40"] = (new CheckpointSpec { Width = 40, Heads = 5, Layers = 2, Context = 16 }, [1, 16, 7]),
+        // Untied head, F16 storage, three heads of 12.
+        ["untied-f16-width36"] = (new CheckpointSpec { Width = 36, Heads = 3, Layers = 3, Context = 12, Tied = false, DType = "F16" }, [12, 1, 5]),
+        // BF16, "transformer." prefix, three shards with an index, no mask buffers.
+        ["bf16-prefix-sharded"] = (new CheckpointSpec { Width = 48, Heads = 4, Layers = 2, Context = 20, DType = "BF16", Prefix = true, Shards = 3, MaskBuffers = false }, [20, 3]),
+        // Exact GELU and an MLP width that is not 4·d.
+        ["gelu-erf-inner100"] = (new CheckpointSpec { Width = 24, Heads = 2, Layers = 2, Context = 10, Activation = "gelu", Inner = 100 }, [10, 4]),
+        // One head of odd width 17, one layer, ReLU.
+        ["one-head-width17-relu"] = (new CheckpointSpec { Width = 17, Heads = 1, Layers = 1, Context = 9, Activation = "relu" }, [9, 2, 1]),
+        // Width past one 64-column panel and more rows than one micro-tile batch.
+        ["width136-long"] = (new CheckpointSpec { Width = 136, Heads = 4, Layers = 2, Context = 80, Vocabulary = 333 }, [80, 61, 1]),
+    };
+
+    public static TheoryData<string> CaseNames => [.. Cases.Keys];
+
+    [Theory]
+    [MemberData(nameof(CaseNames))]
+    public void Matches_numpy_reference(string name)
+    {
+        (CheckpointSpec spec, int[] lengths) = Cases[name];
+        string folder = Checkpoints.Folder(spec);
+        int[][] sequences = RandomSequences(lengths, spec.Vocabulary, seed: 7);
+        Compare(folder, spec, sequences, allLogits: true);
+    }
+
+    /// <summary>The published GPT-2 small shape at full context (1024 tokens) and at lengths 7 and 1.</summary>
+    [Fact]
+    public void Matches_numpy_reference_at_gpt2_small_shape()
+    {
+        CheckpointSpec spec = CheckpointSpec.Gpt2Small;
+        string folder = Checkpoints.Folder(spec);
+        int[][] sequences = RandomSequences([1024, 7, 1], spec.Vocabulary, seed: 11);
+        Compare(folder, spec, sequences, allLogits: false);
+    }
+
+    private void Compare(string folder, CheckpointSpec spec, int[][] sequences, bool allLogits)
+    {
+        using var temp = new TempFolder();
+        string seqPath = temp.File("sequences.json");
+        File.WriteAllText(seqPath, JsonSerializer.Serialize(sequences));
+        string outDir = temp.File("out");
+        PythonReference.Run("gpt2_numpy.py", [folder, seqPath, outDir, .. allLogits ? ["--all-logits"] : Array.Empty<string>()]);
+
+        LanguageModel model = LanguageModel.Open(folder);
+        int layers = spec.Layers;
+        ForwardResult r = model.Forward(sequences, new ForwardOptions
+        {
+            HiddenLayers = [.. Enumerable.Range(0, layers + 1)],
+            Logits = allLogits ? LogitPositions.All : LogitPositions.Last,
+        });
+
+        int d = spec.Width;
+        for (int k = 0; k <= layers; k++)
+        {
+            (double[] expected, int[] shape) = Npy.Read(Path.Combine(outDir, $"hidden_{k}.npy"));
+            Assert.Equal([sequences.Sum(s => s.Length), d], shape);
+            float[] actual = Concatenate(sequences, (s, t) => r.HiddenState(k, s, t), d);
+            Tolerance.AssertClose(actual, expected, Atol, Rtol, $"hidden state of layer {k}");
+            output.WriteLine($"layer {k}: max |diff| {Tolerance.MaxAbsDifference(actual, expected):E2}");
+        }
+
+        int v = spec.Vocabulary;
+        (double[] last, _) = Npy.Read(Path.Combine(outDir, "logits_last.npy"));
+        float[] lastActual = new float[sequences.Length * v];
+        for (int s = 0; s < sequences.Length; s++)
+        {
+            r.LastLogits(s).CopyTo(lastActual.AsSpan(s * v));
+        }
+        Tolerance.AssertClose(lastActual, last, Atol, Rtol, "last-position logits");
+        output.WriteLine($"logits (last): max |diff| {Tolerance.MaxAbsDifference(lastActual, last):E2}");
+
+        if (allLogits)
+        {
+            (double[] all, _) = Npy.Read(Path.Combine(outDir, "logits_all.npy"));
+            float[] allActual = Concatenate(sequences, r.Logits, v);
+            Tolerance.AssertClose(allActual, all, Atol, Rtol, "all-position logits");
+        }
+    }
+
+    private delegate ReadOnlySpan<float> RowOf(int sequence, int position);
+
+    private static float[] Concatenate(int[][] sequences, RowOf row, int width)
+    {
+        float[] all = new float[sequences.Sum(s => s.Length) * width];
+        int offset = 0;
+        for (int s = 0; s < sequences.Length; s++)
+        {
+            for (int t = 0; t < sequences[s].Length; t++)
+            {
+                row(s, t).CopyTo(all.AsSpan(offset));
+                offset += width;
+            }
+        }
+        return all;
+    }
+
+    internal static int[][] RandomSequences(int[] lengths, int vocabulary, ulong seed)
+    {
+        var rng = new DeterministicRandom(seed);
+        return [.. lengths.Select(n => Enumerable.Range(0, n).Select(_ => (int)(rng.NextUInt64() % (ulong)vocabulary)).ToArray())];
+    }
+}
