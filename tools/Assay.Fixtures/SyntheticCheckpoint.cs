@@ -158,7 +158,9 @@ public static class SyntheticCheckpoint
             n *= dim;
         }
         float[] values = new float[n];
-        var rng = new DeterministicRandom(DeterministicRandom.SeedFor(spec.Seed, name));
+        // Seeded by the unprefixed name, so both naming layouts hold the same values.
+        string seedName = name.StartsWith("transformer.", StringComparison.Ordinal) ? name["transformer.".Length..] : name;
+        var rng = new DeterministicRandom(DeterministicRandom.SeedFor(spec.Seed, seedName));
         rng.FillNormal(values, std, mean);
         RoundThrough(values, spec.DType);
         return new StoredParameter(name, shape, values);

@@ -69,15 +69,8 @@ public sealed record ModelConfig
         {
             throw new ModelConfigException(path, null, "file not found; a model folder needs a config.json");
         }
-        JsonDocument doc;
-        try
-        {
-            doc = JsonDocument.Parse(File.ReadAllBytes(path), new JsonDocumentOptions { MaxDepth = 32 });
-        }
-        catch (JsonException e)
-        {
-            throw new ModelConfigException(path, null, $"not well-formed JSON ({e.Message})", e);
-        }
+        JsonDocument doc = JsonInput.TryParse(File.ReadAllBytes(path), maxDepth: 32, out string problem)
+            ?? throw new ModelConfigException(path, null, problem);
         using (doc)
         {
             return Parse(path, doc.RootElement);

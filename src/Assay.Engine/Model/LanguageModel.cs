@@ -76,7 +76,11 @@ public sealed class LanguageModel
     /// batch go through each matrix product together, unpadded; attention runs per sequence and head in parallel.
     /// </summary>
     /// <exception cref="ArgumentException">A sequence is empty, too long, or holds an id outside the vocabulary.</exception>
-    public ForwardResult Forward(IReadOnlyList<int[]> sequences, ForwardOptions? options = null)
+    public ForwardResult Forward(IReadOnlyList<int[]> sequences, ForwardOptions? options = null) =>
+        Forward(sequences, options, KernelSelector.Current);
+
+    /// <summary>The forward pass on a chosen kernel path (tests compare every path against the reference).</summary>
+    internal ForwardResult Forward(IReadOnlyList<int[]> sequences, ForwardOptions? options, KernelVariant variant)
     {
         ArgumentNullException.ThrowIfNull(sequences);
         options ??= ForwardOptions.LastLogits;
@@ -113,6 +117,6 @@ public sealed class LanguageModel
             total = checked(total + seq.Length);
         }
 
-        return new ForwardPass(_weights, c, KernelSelector.Current).Run(sequences, starts, lengths, total, options);
+        return new ForwardPass(_weights, c, variant).Run(sequences, starts, lengths, total, options);
     }
 }

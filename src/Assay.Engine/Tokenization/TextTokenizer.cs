@@ -87,15 +87,8 @@ public sealed partial class TextTokenizer
     /// <summary>Byte-level BPE from the "model" section (type "BPE", "vocab", "merges") of a JSON tokenizer definition.</summary>
     public static TextTokenizer FromDefinition(string path)
     {
-        JsonDocument doc;
-        try
-        {
-            doc = JsonDocument.Parse(File.ReadAllBytes(path), new JsonDocumentOptions { MaxDepth = 64 });
-        }
-        catch (JsonException e)
-        {
-            throw new TokenizerFileException(path, $"not well-formed JSON ({e.Message})", e);
-        }
+        JsonDocument doc = JsonInput.TryParse(File.ReadAllBytes(path), maxDepth: 64, out string problem)
+            ?? throw new TokenizerFileException(path, problem);
         using (doc)
         {
             if (doc.RootElement.ValueKind != JsonValueKind.Object
@@ -185,15 +178,8 @@ public sealed partial class TextTokenizer
 
     private static Dictionary<string, int> ReadVocabulary(string path)
     {
-        JsonDocument doc;
-        try
-        {
-            doc = JsonDocument.Parse(File.ReadAllBytes(path), new JsonDocumentOptions { MaxDepth = 4 });
-        }
-        catch (JsonException e)
-        {
-            throw new TokenizerFileException(path, $"not well-formed JSON ({e.Message})", e);
-        }
+        JsonDocument doc = JsonInput.TryParse(File.ReadAllBytes(path), maxDepth: 4, out string problem)
+            ?? throw new TokenizerFileException(path, problem);
         using (doc)
         {
             return ReadVocabularyObject(path, doc.RootElement, "the vocabulary");

@@ -164,15 +164,8 @@ public sealed class SafetensorsCheckpoint : IDisposable
 
     private static Dictionary<string, string> ReadWeightMap(string indexPath)
     {
-        JsonDocument doc;
-        try
-        {
-            doc = JsonDocument.Parse(File.ReadAllBytes(indexPath), new JsonDocumentOptions { MaxDepth = 8 });
-        }
-        catch (JsonException e)
-        {
-            throw new WeightsFormatException(indexPath, null, $"not well-formed JSON ({e.Message})", e);
-        }
+        JsonDocument doc = JsonInput.TryParse(File.ReadAllBytes(indexPath), maxDepth: 8, out string problem)
+            ?? throw new WeightsFormatException(indexPath, null, problem);
         using (doc)
         {
             if (doc.RootElement.ValueKind != JsonValueKind.Object

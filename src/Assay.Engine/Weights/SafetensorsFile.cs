@@ -189,15 +189,8 @@ public sealed unsafe class SafetensorsFile : IDisposable
 
     private static (List<TensorInfo>, Dictionary<string, string>) ParseHeader(string path, ReadOnlySpan<byte> header, long dataLength)
     {
-        JsonDocument doc;
-        try
-        {
-            doc = JsonDocument.Parse(header.ToArray(), new JsonDocumentOptions { MaxDepth = 8 });
-        }
-        catch (JsonException e)
-        {
-            throw new WeightsFormatException(path, null, $"header is not well-formed JSON ({e.Message})", e);
-        }
+        JsonDocument doc = JsonInput.TryParse(header.ToArray(), maxDepth: 8, out string problem)
+            ?? throw new WeightsFormatException(path, null, $"header is {problem}");
 
         using (doc)
         {

@@ -1,5 +1,6 @@
 using System.Text.Json;
 using Assay.Fixtures;
+using Assay.Kernels;
 using Assay.Model;
 using Assay.Tests.Support;
 using Xunit.Abstractions;
@@ -32,16 +33,31 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
         ["width136-long"] = (new CheckpointSpec { Width = 136, Heads = 4, Layers = 2, Context = 80, Vocabulary = 333 }, [80, 61, 1]),
     };
 
-    public static TheoryData<string> CaseNames => [.. Cases.Keys];
+    public static TheoryData<string, KernelVariant> CaseNames
+    {
+        get
+        {
+            var data = new TheoryData<string, KernelVariant>();
+            foreach (string name in Cases.Keys)
+            {
+                foreach (KernelVariant v in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
+                {
+                    data.Add(name, v);
+                }
+            }
+            return data;
+        }
+    }
 
+    /// <summary>Every case on every kernel path this CPU runs.</summary>
     [Theory]
     [MemberData(nameof(CaseNames))]
-    public void Matches_numpy_reference(string name)
+    public void Matches_numpy_reference(string name, KernelVariant variant)
     {
         (CheckpointSpec spec, int[] lengths) = Cases[name];
         string folder = Checkpoints.Folder(spec);
         int[][] sequences = RandomSequences(lengths, spec.Vocabulary, seed: 7);
-        Compare(folder, spec, sequences, allLogits: true);
+        Compare(folder, spec, sequences, allLogits: true, variant);
     }
 
     /// <summary>The published GPT-2 small shape at full context (1024 tokens) and at lengths 7 and 1.</summary>
@@ -51,10 +67,10 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
         CheckpointSpec spec = CheckpointSpec.Gpt2Small;
         string folder = Checkpoints.Folder(spec);
         int[][] sequences = RandomSequences([1024, 7, 1], spec.Vocabulary, seed: 11);
-        Compare(folder, spec, sequences, allLogits: false);
+        Compare(folder, spec, sequences, allLogits: false, KernelSelector.Current);
     }
 
-    private void Compare(string folder, CheckpointSpec spec, int[][] sequences, bool allLogits)
+    private void Compare(string folder, CheckpointSpec spec, int[][] sequences, bool allLogits, KernelVariant variant)
     {
         using var temp = new TempFolder();
         string seqPath = temp.File("sequences.json");
@@ -68,7 +84,7 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
         {
             HiddenLayers = [.. Enumerable.Range(0, layers + 1)],
             Logits = allLogits ? LogitPositions.All : LogitPositions.Last,
-        });
+        }, variant);
 
         int d = spec.Width;
         for (int k = 0; k <= layers; k++)

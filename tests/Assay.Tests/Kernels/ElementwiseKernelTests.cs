@@ -1,0 +1,87 @@
+using System.Globalization;
+using Assay.Config;
+using Assay.Fixtures;
+using Assay.Tests.Support;
+using K = Assay.Kernels.Kernels;
+
+namespace Assay.Tests.Kernels;
+
+/// <summary>LayerNorm, softmax, activations and attention against float64 references of their formulas.</summary>
+public sealed class ElementwiseKernelTests
+{
+    public static TheoryData<int> Sizes => [1, 2, 7, 15, 16, 17, 63, 64, 65, 127, 128, 129, 255, 256, 257, 768, 1000];
+
+    [Theory]
+    [MemberData(nameof(Sizes))]
+    public void LayerNorm_matches_reference(int n)
+    {
+        var rng = new DeterministicRandom((ulong)n);
+        float[] x = GemmTests.Random(ref rng, 3 * n), g = GemmTests.Random(ref rng, n), b = GemmTests.Random(ref rng, n);
+        for (int i = 0; i < x.Length; i++)
+        {
+            x[i] = (x[i] * 3) + 10; // an offset mean, where E[x²]−E[x]² would lose digits
+        }
+        float[] y = new float[x.Length];
+        K.LayerNorm(x, y, 3, g, b, 1e-5f);
+        double[] expected = ReferenceKernels.LayerNorm(x, g, b, 3, 1e-5);
+        Tolerance.AssertClose(y, expected, n == 1 ? 1e-3 : 2e-5, 2e-5, $"LayerNorm n={n}");
+    }
+
+    [Theory]
+    [MemberData(nameof(Sizes))]
+    public void Softmax_matches_reference_and_survives_large_logits(int n)
+    {
+        var rng = new DeterministicRandom((ulong)n + 100);
+        float[] x = GemmTests.Random(ref rng, n);
+        x[0] = 1000f; // exp(1000) overflows float32 without the max subtraction
+        double[] expected = ReferenceKernels.Softmax(x);
+        K.SoftmaxInPlace(x);
+        Tolerance.AssertClose(x, expected, 1e-7, 1e-5, $"softmax n={n}");
+    }
+
+    [Fact]
+    public void Gelu_tanh_matches_its_formula()
+    {
+        float[] x = [.. Enumerable.Range(-2000, 4001).Select(i => i / 200f)];
+        double[] expected = [.. x.Select(v => ReferenceKernels.GeluTanh(v))];
+        K.Activate(x, Activation.GeluTanh);
+        Tolerance.AssertClose(x, expected, 1e-6, 1e-5, "gelu (tanh)");
+    }
+
+    [Fact]
+    public void Erf_matches_the_c_library()
+    {
+        // Outside reference: Python's math.erf (the C library's erf), run live.
+        double[] points = [-4, -2.5, -1, -0.5, -0.1, 0, 1e-4, 0.1, 0.3, 0.5, 0.9, 1, 1.5, 2, 3, 5];
+        string[] lines = PythonReference.Run("erf_values.py", [.. points.Select(p => p.ToString("R", CultureInfo.InvariantCulture))])
+            .Split('\n', StringSplitOptions.RemoveEmptyEntries);
+        for (int i = 0; i < points.Length; i++)
+        {
+            double expected = double.Parse(lines[i], CultureInfo.InvariantCulture);
+            Assert.True(Math.Abs(K.Erf(points[i]) - expected) <= 2e-7, $"erf({points[i]}) = {K.Erf(points[i])}, libm {expected}");
+        }
+    }
+
+    [Fact]
+    public void Relu_clamps_negatives()
+    {
+        float[] x = [-2f, -0f, 0.5f, 3f];
+        K.Activate(x, Activation.Relu);
+        Assert.Equal([0f, 0f, 0.5f, 3f], x);
+    }
+
+    [Theory]
+    [InlineData(1, 8, 1, 0)]
+    [InlineData(17, 40, 5, 3)]
+    [InlineData(64, 768, 12, 11)]
+    public void Attention_matches_reference(int length, int width, int heads, int head)
+    {
+        int hd = width / heads;
+        var rng = new DeterministicRandom((ulong)(length * width));
+        float[] qkv = GemmTests.Random(ref rng, length * 3 * width);
+        float[] o = new float[length * width];
+        K.CausalAttentionHead(qkv, o, length, width, head, hd, new float[length]);
+        double[] expected = ReferenceKernels.Attention(qkv, length, width, head, hd);
+        Tolerance.AssertClose(o, expected, 1e-5, 1e-5, "attention");
+    }
+}
