@@ -42,9 +42,6 @@ internal sealed class PackedMatrix
     public static PackedMatrix FromTransposed(ReadOnlySpan<float> bt, int rows, int columns) =>
         Pack(bt, rows, columns, transposed: true, default);
 
-    /// <summary>Element B[k, n].</summary>
-    public float this[int k, int n] => Data[(((long)(n / PanelWidth) * Rows) + k) * PanelWidth + (n % PanelWidth)];
-
     /// <summary>Copies column n of B (K values; for a transposed pack, row n of the source) into destination.</summary>
     public void CopyColumn(int n, Span<float> destination)
     {

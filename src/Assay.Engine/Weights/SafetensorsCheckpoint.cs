@@ -92,9 +92,6 @@ public sealed class SafetensorsCheckpoint : IDisposable
         entry.File.ReadFloat32(tensor, destination);
     }
 
-    /// <summary>The raw bytes of a tensor; valid while the checkpoint is open.</summary>
-    internal ReadOnlySpan<byte> RawBytes(TensorInfo tensor) => _byName[tensor.Name].File.RawBytes(tensor);
-
     /// <inheritdoc />
     public void Dispose()
     {
