@@ -7,12 +7,12 @@ if (args.Length is < 1 or > 3)
     Console.Error.WriteLine("usage: assay-fixtures <out-dir> [demo|gpt2-small|tiny] [F32|F16|BF16]");
     return 2;
 }
-CheckpointSpec spec = (args.Length > 1 ? args[1] : "demo") switch
+CheckpointSpec? spec = (args.Length > 1 ? args[1] : "demo") switch
 {
     "demo" => CheckpointSpec.Demo,
     "gpt2-small" => CheckpointSpec.Gpt2Small,
     "tiny" => new CheckpointSpec(),
-    string other => null!,
+    _ => null,
 };
 if (spec is null)
 {

@@ -76,7 +76,7 @@ internal sealed class ModelWeights
     /// <summary>Checks the checkpoint against the config and converts every parameter; throws on the first mismatch.</summary>
     public static ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath)
     {
-        string prefix = Bind(checkpoint, config, configPath);
+        string prefix = Check(checkpoint, config, configPath).NamePrefix;
         var reader = new TensorReader(checkpoint, prefix);
         int d = config.Width, m = config.InnerWidth, v = config.VocabularySize;
 
@@ -115,13 +115,9 @@ internal sealed class ModelWeights
     }
 
     /// <summary>
-    /// Validates names, shapes and dtypes of the whole checkpoint before anything is converted, and returns the
-    /// naming prefix in use ("" or "transformer.").
+    /// Validates names, shapes and dtypes of the whole checkpoint before anything is converted; see
+    /// <see cref="LanguageModel.CheckCheckpoint"/>.
     /// </summary>
-    public static string Bind(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath) =>
-        Check(checkpoint, config, configPath).NamePrefix;
-
-    /// <summary>See <see cref="LanguageModel.CheckCheckpoint"/>.</summary>
     public static CheckpointSummary Check(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath)
     {
         string prefix = checkpoint.TryGetTensor(Prefix + "wte.weight", out _) ? Prefix : "";
