@@ -12,13 +12,17 @@ internal static unsafe partial class Kernels
     /// <summary>Below this many multiply-adds a GEMM runs on the calling thread.</summary>
     private const long ParallelThreshold = 1 << 18;
 
+    /// <summary>No bound on the worker threads.</summary>
+    public static readonly ParallelOptions DefaultParallelism = new();
+
     /// <summary>
     /// C = A·B + bias, or C += A·B + bias when <paramref name="accumulate"/> (a fused residual add). A is M × K
     /// row-major with row stride <paramref name="lda"/>; C is M × N with row stride <paramref name="ldc"/>. Each output
     /// element is one float32 dot product over k = 0 … K−1 in order, so results do not depend on the thread count.
+    /// <paramref name="parallel"/> bounds the worker threads (null: all cores).
     /// </summary>
     public static void Gemm(ReadOnlySpan<float> a, int m, int lda, PackedMatrix b, Span<float> c, int ldc,
-        bool accumulate, KernelVariant variant)
+        bool accumulate, KernelVariant variant, ParallelOptions? parallel = null)
     {
         int k = b.Rows;
         int n = b.Columns;
@@ -52,7 +56,7 @@ internal static unsafe partial class Kernels
             else
             {
                 // Panel-major order keeps one panel of B hot in cache while a worker walks its rows.
-                Parallel.For(0, tasks, t => job.Run(t / rowTasks, t % rowTasks));
+                Parallel.For(0, tasks, parallel ?? DefaultParallelism, t => job.Run(t / rowTasks, t % rowTasks));
             }
         }
     }

@@ -25,6 +25,16 @@ public sealed record ForwardOptions
     /// <summary>Where logits are computed.</summary>
     public LogitPositions Logits { get; init; } = LogitPositions.Last;
 
+    /// <summary>
+    /// At most this many worker threads (0: as many as the runtime gives, normally one per core). Results do not
+    /// depend on it: every output element is computed by one thread in a fixed order.
+    /// </summary>
+    public int MaxThreads { get; init; }
+
+    internal ParallelOptions Parallelism => MaxThreads > 0
+        ? new ParallelOptions { MaxDegreeOfParallelism = MaxThreads }
+        : Kernels.Kernels.DefaultParallelism;
+
     /// <summary>The options of <c>assay next</c>: logits at the last position, no hidden states.</summary>
     public static ForwardOptions LastLogits { get; } = new();
 }

@@ -8,7 +8,7 @@ namespace Assay.Model;
 /// One forward pass over a ragged batch. Activations are [T, ·] row-major over the T tokens of all sequences laid end
 /// to end; the matrix products see all T rows at once, attention sees each sequence alone.
 /// </summary>
-internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, KernelVariant variant)
+internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, KernelVariant variant, ParallelOptions parallel)
 {
     public ForwardResult Run(IReadOnlyList<int[]> sequences, int[] starts, int[] lengths, int total, ForwardOptions options)
     {
@@ -29,14 +29,14 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
         {
             BlockWeights b = weights.Blocks[l];
             LayerNorm(x, h, total, b.Norm1Gain, b.Norm1Bias, config.NormEpsilon);
-            Gemm(h, total, d, b.Attention, qkv, 3 * d, accumulate: false, variant);
+            Gemm(h, total, d, b.Attention, qkv, 3 * d, accumulate: false, variant, parallel);
             Attention(qkv, attn, starts, lengths);
-            Gemm(attn, total, d, b.AttentionOut, x, d, accumulate: true, variant);
+            Gemm(attn, total, d, b.AttentionOut, x, d, accumulate: true, variant, parallel);
 
             LayerNorm(x, h, total, b.Norm2Gain, b.Norm2Bias, config.NormEpsilon);
-            Gemm(h, total, d, b.MlpIn, mlp, m, accumulate: false, variant);
+            Gemm(h, total, d, b.MlpIn, mlp, m, accumulate: false, variant, parallel);
             Activate(mlp, config.Activation);
-            Gemm(mlp, total, m, b.MlpOut, x, d, accumulate: true, variant);
+            Gemm(mlp, total, m, b.MlpOut, x, d, accumulate: true, variant, parallel);
 
             if (l + 1 < layers)
             {
@@ -72,7 +72,7 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
         int d = config.Width, heads = config.Heads, hd = config.HeadWidth;
         int work = lengths.Length * heads;
         int longest = lengths.Max();
-        Parallel.For(0, work, () => new float[longest], (i, _, scores) =>
+        Parallel.For(0, work, parallel, () => new float[longest], (i, _, scores) =>
         {
             int s = i / heads, head = i % heads;
             int start = starts[s], length = lengths[s];
@@ -92,7 +92,7 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
             case LogitPositions.All:
             {
                 float[] all = new float[(long)total * v];
-                Gemm(normed, total, d, weights.Head, all, v, accumulate: false, variant);
+                Gemm(normed, total, d, weights.Head, all, v, accumulate: false, variant, parallel);
                 return all;
             }
             default:
@@ -104,7 +104,7 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
                     normed.AsSpan((starts[s] + lengths[s] - 1) * d, d).CopyTo(last.AsSpan(s * d, d));
                 }
                 float[] logits = new float[(long)lengths.Length * v];
-                Gemm(last, lengths.Length, d, weights.Head, logits, v, accumulate: false, variant);
+                Gemm(last, lengths.Length, d, weights.Head, logits, v, accumulate: false, variant, parallel);
                 return logits;
             }
         }

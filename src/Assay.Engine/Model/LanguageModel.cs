@@ -23,6 +23,9 @@ public sealed class LanguageModel
         _weights = weights;
     }
 
+    /// <summary>The converted parameters, for the feature kernels that read the output head directly.</summary>
+    internal ModelWeights Weights => _weights;
+
     /// <summary>The checkpoint folder.</summary>
     public string Folder { get; }
 
@@ -117,6 +120,10 @@ public sealed class LanguageModel
             total = checked(total + seq.Length);
         }
 
-        return new ForwardPass(_weights, c, variant).Run(sequences, starts, lengths, total, options);
+        if (options.MaxThreads < 0)
+        {
+            throw new ArgumentException($"MaxThreads {options.MaxThreads}: expected 0 (all cores) or a positive count", nameof(options));
+        }
+        return new ForwardPass(_weights, c, variant, options.Parallelism).Run(sequences, starts, lengths, total, options);
     }
 }

@@ -1,0 +1,96 @@
+using System.Diagnostics;
+using System.Runtime.Intrinsics;
+
+namespace Assay.Kernels;
+
+internal static partial class Kernels
+{
+    /// <summary>Rows of B that one parallel work item covers.</summary>
+    private const int ConditionalMeanRowsPerTask = 16;
+
+    /// <summary>
+    /// The probability-weighted average of B's columns: out[r, k] = Σ_n B[k, n] · p[r, n] for each of
+    /// <paramref name="rows"/> weight rows p (N values each, row-major). With B the output head packed as Eᵀ (d × V)
+    /// and p a next-word distribution this is the conditional-mean feature Φp = Σ_v p_v·E_v. Each output is summed in
+    /// 64 lanes (lane j takes columns j, j + 64, …, one fused multiply-add per panel in panel order) and the lanes are
+    /// then added in order, so every kernel path gives the same bits and the thread count changes nothing.
+    /// </summary>
+    public static void ConditionalMean(ReadOnlySpan<float> p, int rows, PackedMatrix b, Span<float> output,
+        KernelVariant variant, ParallelOptions? parallel = null)
+    {
+        const int W = PackedMatrix.PanelWidth;
+        int k = b.Rows, n = b.Columns, panels = b.Panels;
+        Debug.Assert(p.Length >= (long)rows * n && output.Length >= (long)rows * k);
+        if (rows == 0)
+        {
+            return;
+        }
+
+        // Weight rows padded to whole panels, so the padded columns of B meet zeros.
+        float[] padded = new float[(long)rows * panels * W];
+        for (int r = 0; r < rows; r++)
+        {
+            p.Slice(r * n, n).CopyTo(padded.AsSpan(r * panels * W, n));
+        }
+        float[] result = new float[(long)rows * k];
+        float[] data = b.Data;
+        int tasks = (k + ConditionalMeanRowsPerTask - 1) / ConditionalMeanRowsPerTask;
+        Parallel.For(0, tasks, parallel ?? DefaultParallelism, () => new float[rows * W], (task, _, lanes) =>
+        {
+            int k0 = task * ConditionalMeanRowsPerTask;
+            int k1 = Math.Min(k, k0 + ConditionalMeanRowsPerTask);
+            for (int kk = k0; kk < k1; kk++)
+            {
+                Array.Clear(lanes);
+                for (int panel = 0; panel < panels; panel++)
+                {
+                    ReadOnlySpan<float> bRow = data.AsSpan((panel * k * W) + (kk * W), W);
+                    for (int r = 0; r < rows; r++)
+                    {
+                        AccumulateLanes(bRow, padded.AsSpan((r * panels * W) + (panel * W), W), lanes.AsSpan(r * W, W), variant);
+                    }
+                }
+                for (int r = 0; r < rows; r++)
+                {
+                    float sum = 0f;
+                    for (int j = 0; j < W; j++)
+                    {
+                        sum += lanes[(r * W) + j];
+                    }
+                    result[((long)r * k) + kk] = sum;
+                }
+            }
+            return lanes;
+        }, static _ => { });
+        result.CopyTo(output);
+    }
+
+    /// <summary>lanes[j] = fma(b[j], p[j], lanes[j]) for the 64 lanes of one panel row.</summary>
+    private static void AccumulateLanes(ReadOnlySpan<float> b, ReadOnlySpan<float> p, Span<float> lanes, KernelVariant variant)
+    {
+        const int W = PackedMatrix.PanelWidth;
+        switch (variant)
+        {
+            case KernelVariant.Vector512:
+                for (int j = 0; j < W; j += Vector512<float>.Count)
+                {
+                    Vector512.FusedMultiplyAdd(Vector512.Create(b[j..]), Vector512.Create(p[j..]), Vector512.Create(lanes[j..]))
+                        .CopyTo(lanes[j..]);
+                }
+                break;
+            case KernelVariant.Vector256:
+                for (int j = 0; j < W; j += Vector256<float>.Count)
+                {
+                    Vector256.FusedMultiplyAdd(Vector256.Create(b[j..]), Vector256.Create(p[j..]), Vector256.Create(lanes[j..]))
+                        .CopyTo(lanes[j..]);
+                }
+                break;
+            default:
+                for (int j = 0; j < W; j++)
+                {
+                    lanes[j] = MathF.FusedMultiplyAdd(b[j], p[j], lanes[j]);
+                }
+                break;
+        }
+    }
+}
