@@ -4,4 +4,5 @@ using Assay.Cli.Commands;
 var root = new RootCommand("assay: run GPT-2-family language models from safetensors checkpoints on the CPU and extract what they compute.");
 root.Subcommands.Add(InspectCommand.Create());
 root.Subcommands.Add(NextCommand.Create());
+root.Subcommands.Add(ExtractCommand.Create());
 return root.Parse(args).Invoke();

@@ -1,0 +1,188 @@
+using System.CommandLine;
+using System.Globalization;
+using Assay.Features;
+using Assay.Input;
+using Assay.Model;
+using Assay.Output;
+
+namespace Assay.Cli.Commands;
+
+/// <summary><c>assay extract &lt;model-dir&gt; &lt;input&gt; --out &lt;run-folder&gt;</c>: features of every text, streamed to a run folder.</summary>
+internal static class ExtractCommand
+{
+    public const int Interrupted = 130;
+
+    public static Command Create()
+    {
+        var folder = new Argument<DirectoryInfo>("model-dir") { Description = "Checkpoint folder." };
+        var input = new Argument<FileInfo>("input") { Description = "Texts: plain lines (.txt), JSON lines (.jsonl), CSV (.csv) or TSV (.tsv) with a header." };
+        var output = new Option<DirectoryInfo>("--out", "-o") { Description = "Run folder to write (created if missing).", Required = true };
+        var prompt = new Option<string>("--prompt") { Description = "Template around each text, with {text} and optionally {mark}; {{ and }} for braces.", DefaultValueFactory = _ => "{text}" };
+        var features = new Option<string>("--features") { Description = "Comma-separated: hidden[:LAYER|all][:last|mean|mark], nextword, topk:K, words, words-loglik, cmean, completions.", DefaultValueFactory = _ => FeatureSpecs.Default };
+        var words = new Option<FileInfo>("--words") { Description = "Word list for words / words-loglik: one word per line." };
+        var completions = new Option<FileInfo>("--completions") { Description = "Candidate completions for completions: one per line." };
+        var format = new Option<string>("--format") { Description = "auto, lines, jsonl, csv or tsv.", DefaultValueFactory = _ => "auto" };
+        var textField = new Option<string>("--text-field") { Description = "JSONL field or CSV column of the text.", DefaultValueFactory = _ => "text" };
+        var idField = new Option<string>("--id-field") { Description = "Field of the row id; when given, records without it are rejected (default: id if present, else the line number)." };
+        var labelField = new Option<string>("--label-field") { Description = "Field of the label; when given, records without it are rejected (default: label if present)." };
+        var keep = new Option<string>("--keep") { Description = "Which end of an over-long text to keep: head or tail. The prompt is never cut.", DefaultValueFactory = _ => "head" };
+        var noSpace = new Option<bool>("--no-leading-space") { Description = "Score words and completions exactly as written, without a space before them." };
+        var precision = new Option<string>("--precision") { Description = "float32 or float16 for the floating features.", DefaultValueFactory = _ => "float32" };
+        var budget = new Option<int>("--token-budget") { Description = "Tokens per forward pass.", DefaultValueFactory = _ => new ExtractionOptions().TokenBudget };
+        var commit = new Option<int>("--commit-rows") { Description = "Rows per commit (the most a crash can lose).", DefaultValueFactory = _ => new RunOptions().CommitRows };
+        var threads = new Option<int>("--threads") { Description = "Worker threads; 0 = all cores. Outputs do not depend on it.", DefaultValueFactory = _ => 0 };
+        var resume = new Option<bool>("--resume") { Description = "Continue the unfinished run in the folder." };
+        var overwrite = new Option<bool>("--overwrite") { Description = "Replace a run already in the folder." };
+        var strict = new Option<bool>("--strict") { Description = "Stop at the first bad record instead of writing it to rejects.csv." };
+        var progressSeconds = new Option<double>("--progress-seconds") { Description = "Seconds between progress lines when stderr is not a terminal.", DefaultValueFactory = _ => 10 };
+
+        var command = new Command("extract", "Run the model over every text of an input file and write the requested features to a run folder.")
+        {
+            folder, input, output, prompt, features, words, completions, format, textField, idField, labelField, keep, noSpace,
+            precision, budget, commit, threads, resume, overwrite, strict, progressSeconds,
+        };
+        command.SetAction(r => CommandRunner.Run(() =>
+        {
+            string? id = r.GetValue(idField), label = r.GetValue(labelField);
+            var request = new Request(
+                r.GetValue(folder)!.FullName, r.GetValue(input)!.FullName, r.GetValue(output)!.FullName,
+                r.GetValue(prompt)!, r.GetValue(features)!, r.GetValue(words)?.FullName, r.GetValue(completions)?.FullName,
+                r.GetValue(format)!,
+                new InputFields
+                {
+                    Text = r.GetValue(textField)!,
+                    Id = id ?? "id",
+                    IdRequired = id != null,
+                    Label = label ?? "label",
+                    LabelRequired = label != null,
+                },
+                r.GetValue(keep)!, !r.GetValue(noSpace), r.GetValue(precision)!, r.GetValue(budget), r.GetValue(commit),
+                r.GetValue(threads), r.GetValue(resume), r.GetValue(overwrite), r.GetValue(strict), r.GetValue(progressSeconds));
+            using var cancel = new CancellationTokenSource();
+            ConsoleCancelEventHandler onCancel = (_, e) =>
+            {
+                e.Cancel = true;
+                cancel.Cancel();
+            };
+            Console.CancelKeyPress += onCancel;
+            try
+            {
+                return Run(request, Console.Out, Console.Error, cancel.Token);
+            }
+            finally
+            {
+                Console.CancelKeyPress -= onCancel;
+            }
+        }));
+        return command;
+    }
+
+    internal sealed record Request(
+        string Model, string Input, string Output, string Prompt, string Features, string? Words, string? Completions,
+        string Format, InputFields Fields, string Keep, bool LeadingSpace, string Precision, int TokenBudget, int CommitRows,
+        int Threads, bool Resume, bool Overwrite, bool Strict, double ProgressSeconds);
+
+    internal static int Run(Request q, TextWriter o, TextWriter err, CancellationToken cancellationToken)
+    {
+        PromptTemplate template;
+        try
+        {
+            template = PromptTemplate.Parse(q.Prompt);
+        }
+        catch (FormatException e)
+        {
+            throw new ArgumentException($"--prompt: {e.Message}", e);
+        }
+        InputFormat format = q.Format switch
+        {
+            "auto" => InputFormat.Auto,
+            "lines" or "text" => InputFormat.Lines,
+            "jsonl" => InputFormat.JsonLines,
+            "csv" => InputFormat.Csv,
+            "tsv" => InputFormat.Tsv,
+            _ => throw new ArgumentException($"--format {q.Format}: expected auto, lines, jsonl, csv or tsv"),
+        };
+        TextTruncation truncation = q.Keep switch
+        {
+            "head" => TextTruncation.KeepHead,
+            "tail" => TextTruncation.KeepTail,
+            _ => throw new ArgumentException($"--keep {q.Keep}: expected head or tail"),
+        };
+        FeaturePrecision precision = q.Precision switch
+        {
+            "float32" => FeaturePrecision.Binary32,
+            "float16" => FeaturePrecision.Binary16,
+            _ => throw new ArgumentException($"--precision {q.Precision}: expected float32 or float16"),
+        };
+        if (!File.Exists(q.Input))
+        {
+            throw new FileNotFoundException($"{q.Input}: no such input file", q.Input);
+        }
+
+        LanguageModel model = LanguageModel.Open(q.Model);
+        var options = new RunOptions
+        {
+            Extraction = new ExtractionOptions
+            {
+                Prompt = template,
+                Features = FeatureSpecs.Parse(q.Features, model.Config.Layers, q.Words, q.Completions),
+                Truncation = truncation,
+                LeadingSpace = q.LeadingSpace,
+                TokenBudget = q.TokenBudget,
+                MaxThreads = q.Threads,
+            },
+            Format = format,
+            Fields = q.Fields,
+            Precision = precision,
+            Resume = q.Resume,
+            Overwrite = q.Overwrite,
+            Strict = q.Strict,
+            CommitRows = q.CommitRows,
+        };
+
+        var printer = new ProgressPrinter(err, interactive: !Console.IsErrorRedirected && ReferenceEquals(err, Console.Error),
+            TimeSpan.FromSeconds(Math.Max(0.1, q.ProgressSeconds)));
+        RunSummary summary;
+        try
+        {
+            summary = ExtractionRun.Execute(model, q.Input, q.Output, options, printer, cancellationToken);
+        }
+        catch (OperationCanceledException)
+        {
+            printer.End();
+            err.WriteLine($"assay: interrupted; the rows committed so far are kept in {q.Output}. Rerun the same command with --resume to go on.");
+            return Interrupted;
+        }
+        printer.End();
+        PrintSummary(o, q.Output, summary);
+        return 0;
+    }
+
+    private static void PrintSummary(TextWriter o, string folder, RunSummary s)
+    {
+        CultureInfo inv = CultureInfo.InvariantCulture;
+        o.WriteLine($"run folder  {folder}");
+        if (s.AlreadyComplete)
+        {
+            o.WriteLine("            already finished; nothing to do (pass --overwrite to run it again)");
+        }
+        else if (s.ResumedAt > 0)
+        {
+            o.WriteLine(string.Create(inv, $"resumed     after {s.ResumedAt:N0} committed rows"));
+        }
+        o.WriteLine(string.Create(inv, $"records     {s.Read:N0} read = {s.Accepted:N0} accepted + {s.Rejected:N0} rejected{(s.Rejected > 0 ? $" (see {ExtractionRun.RejectsFile})" : "")}"));
+        o.WriteLine(string.Create(inv, $"truncated   {s.TruncatedRows:N0} rows cut to fit the context"));
+        double seconds = s.Elapsed.TotalSeconds;
+        o.WriteLine(string.Create(inv, $"tokens      {s.Tokens:N0} in all rows' filled templates; this session {seconds:F1} s"));
+        string record = Path.Combine(folder, ExtractionRun.RecordFile);
+        if (File.Exists(record))
+        {
+            using var doc = System.Text.Json.JsonDocument.Parse(File.ReadAllBytes(record));
+            foreach (System.Text.Json.JsonElement f in doc.RootElement.GetProperty("files").EnumerateArray())
+            {
+                var shape = f.GetProperty("shape").EnumerateArray().Select(x => x.GetInt64().ToString(inv));
+                o.WriteLine($"file        {f.GetProperty("file").GetString()}  {f.GetProperty("dtype").GetString()}  ({string.Join(" × ", shape)})");
+            }
+        }
+    }
+}
