@@ -86,6 +86,7 @@ public static class ExtractionRun
         var state = resumed ?? new Progress { Settings = settings };
         long resumedAt = state.Rows;
         var session = new JsonObject { ["started"] = Timestamp(started) };
+        UpdateSession(session, TimeSpan.Zero, 0, 0);
         state.Sessions.Add(session);
 
         var files = new RunFiles(outputFolder, outputs, state, fresh: resumed == null);
