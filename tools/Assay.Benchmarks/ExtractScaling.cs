@@ -1,0 +1,102 @@
+using System.Diagnostics;
+using System.Globalization;
+using System.Text.Json;
+using Assay.Fixtures;
+
+namespace Assay.Benchmarks;
+
+/// <summary>
+/// Time and peak memory of <c>assay extract</c> at N and k·N rows, each size run several times in fresh child
+/// processes (peak RSS as the run itself records it in timing.json); medians, and the ratios k·N / N. Linear time
+/// gives a time ratio near k; memory that does not grow with the rows gives a memory ratio near 1.
+/// </summary>
+internal static class ExtractScaling
+{
+    public static int Run(string? model, int rows, int factor, int repeats, string features, TextWriter o)
+    {
+        string work = Path.Combine(Path.GetTempPath(), "assay-bench-" + Environment.ProcessId.ToString(CultureInfo.InvariantCulture));
+        Directory.CreateDirectory(work);
+        try
+        {
+            if (model == null)
+            {
+                model = Path.Combine(work, "demo-model");
+                SyntheticCheckpoint.Write(CheckpointSpec.Demo, model);
+            }
+            var results = new List<(int Rows, double Seconds, double PeakMiB, double TokensPerSecond)>();
+            foreach (int n in new[] { rows, rows * factor })
+            {
+                string input = Path.Combine(work, $"input-{n}.jsonl");
+                WriteInput(input, n);
+                var seconds = new List<double>();
+                var peaks = new List<double>();
+                var rates = new List<double>();
+                for (int r = 0; r < repeats; r++)
+                {
+                    string run = Path.Combine(work, $"run-{n}-{r}");
+                    Extract(model, input, run, features);
+                    using var timing = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(run, "timing.json")));
+                    seconds.Add(timing.RootElement.GetProperty("seconds").GetDouble());
+                    peaks.Add(timing.RootElement.GetProperty("peak_rss_bytes").GetInt64() / (1024.0 * 1024.0));
+                    rates.Add(timing.RootElement.GetProperty("tokens_per_second").GetDouble());
+                    Directory.Delete(run, recursive: true);
+                }
+                results.Add((n, Median(seconds), Median(peaks), Median(rates)));
+            }
+
+            CultureInfo inv = CultureInfo.InvariantCulture;
+            o.WriteLine(string.Create(inv, $"assay extract, features {features}, model {model}; medians of {repeats} runs each"));
+            o.WriteLine("| rows | seconds | tokens/s | peak RSS (MiB) |");
+            o.WriteLine("|---:|---:|---:|---:|");
+            foreach (var r in results)
+            {
+                o.WriteLine(string.Create(inv, $"| {r.Rows:N0} | {r.Seconds:F2} | {r.TokensPerSecond:N0} | {r.PeakMiB:F0} |"));
+            }
+            o.WriteLine(string.Create(inv,
+                $"ratios {factor}N / N: time {results[1].Seconds / results[0].Seconds:F2} (linear: {factor}), peak memory {results[1].PeakMiB / results[0].PeakMiB:F2} (flat: 1)"));
+            return 0;
+        }
+        finally
+        {
+            Directory.Delete(work, recursive: true);
+        }
+    }
+
+    /// <summary>JSONL of synthetic texts of 4 to 60 words drawn from a fixed pool (lengths, not meaning, set the cost).</summary>
+    private static void WriteInput(string path, int rows)
+    {
+        string[] pool = ["lamp", "tide", "harbour", "keeper", "rope", "signal", "storm", "north", "light", "boat", "bell", "fog",
+            "stone", "tower", "night", "watch", "coast", "reef", "wind", "oil"];
+        var rng = new DeterministicRandom(7);
+        using var w = new StreamWriter(path);
+        for (int i = 0; i < rows; i++)
+        {
+            int words = 4 + (int)(rng.NextUnit() * 57);
+            var text = string.Join(' ', Enumerable.Range(0, words).Select(_ => pool[(int)(rng.NextUnit() * pool.Length) % pool.Length]));
+            w.WriteLine(JsonSerializer.Serialize(new { id = i, text, label = i % 5 }));
+        }
+    }
+
+    private static void Extract(string model, string input, string run, string features)
+    {
+        var psi = new ProcessStartInfo("dotnet") { RedirectStandardOutput = true, RedirectStandardError = true };
+        foreach (string a in new[] { Path.Combine(AppContext.BaseDirectory, "assay.dll"), "extract", model, input, "--out", run, "--features", features, "--prompt", "{text} It is a kind of" })
+        {
+            psi.ArgumentList.Add(a);
+        }
+        using Process p = Process.Start(psi)!;
+        Task<string> err = p.StandardError.ReadToEndAsync();
+        p.StandardOutput.ReadToEnd();
+        p.WaitForExit();
+        if (p.ExitCode != 0)
+        {
+            throw new InvalidOperationException($"assay extract exited {p.ExitCode}: {err.Result}");
+        }
+    }
+
+    private static double Median(List<double> values)
+    {
+        double[] v = [.. values.Order()];
+        return v.Length % 2 == 1 ? v[v.Length / 2] : (v[(v.Length / 2) - 1] + v[v.Length / 2]) / 2;
+    }
+}
