@@ -99,7 +99,8 @@ public static class ExtractionRun
                 WriteProgress(outputFolder, state);
             }
             long sessionTokens = 0;
-            var tracker = new ProgressTracker(progress == null ? null : new BatchReporter(progress, state, reader, clock));
+            var reporter = progress == null ? null : new BatchReporter(progress, state, reader, clock);
+            var tracker = new ProgressTracker(reporter);
             using IEnumerator<InputRecord> records = reader.Records().GetEnumerator();
             bool more = true;
             for (long skip = 0; skip < state.Consumed && more; skip++)
@@ -134,6 +135,7 @@ public static class ExtractionRun
                 {
                     break;
                 }
+                reporter?.StartGroup(accepted.Count + rejected.Count, rejected.Count);
 
                 FeatureRow[] rows = extractor.ExtractGroup(texts, state.Rows, tracker, cancellationToken);
                 cancellationToken.ThrowIfCancellationRequested();
@@ -147,6 +149,7 @@ public static class ExtractionRun
                 UpdateSession(session, clock.Elapsed, state.Rows - resumedAt, sessionTokens);
                 files.Commit(state);
                 WriteProgress(outputFolder, state);
+                reporter?.StartGroup(0, 0);
                 progress?.Report(new RunProgress(state.Rows, state.Consumed, state.Rejected, sessionTokens,
                     reader.TotalBytes == 0 ? 1 : Math.Min(1.0, (double)reader.BytesRead / reader.TotalBytes), clock.Elapsed));
             }
@@ -380,9 +383,17 @@ public static class ExtractionRun
         : IProgress<ExtractionProgress>
     {
         private readonly long _rowsBefore = state.Rows;
+        private long _groupRecords, _groupRejected;
+
+        /// <summary>Counts the records of the group being computed, which the state only holds once it is committed.</summary>
+        public void StartGroup(long records, long rejected)
+        {
+            _groupRecords = records;
+            _groupRejected = rejected;
+        }
 
         public void Report(ExtractionProgress value) =>
-            progress.Report(new RunProgress(_rowsBefore + value.Rows, state.Consumed, state.Rejected, value.Tokens,
+            progress.Report(new RunProgress(_rowsBefore + value.Rows, state.Consumed + _groupRecords, state.Rejected + _groupRejected, value.Tokens,
                 reader.TotalBytes == 0 ? 1 : Math.Min(1.0, (double)reader.BytesRead / reader.TotalBytes), clock.Elapsed));
     }
 
