@@ -55,9 +55,13 @@ foreach ((string label, int[] c) in counts)
     readme.AppendLine(inv, $"| {label} | {c[0]:N0} | {c[1]:N0} |");
 }
 readme.AppendLine();
-readme.AppendLine("Licence: WordNet 3.0 licence (permissive). WordNet 3.0 Copyright 2006 by Princeton University. All rights reserved.");
-readme.AppendLine("Permission to use, copy, modify and distribute this database for any purpose and without fee is granted provided the");
-readme.AppendLine("copyright notice and statements (see /usr/share/doc/wordnet-base/copyright) appear on all copies.");
+// The WordNet licence asks for its notice on every copy: the package's copyright file goes beside the data.
+const string Notice = "/usr/share/doc/wordnet-base/copyright";
+if (File.Exists(Notice))
+{
+    File.Copy(Notice, Path.Combine(output, "LICENSE-WordNet.txt"), overwrite: true);
+}
+readme.AppendLine(inv, $"Licence: the WordNet 3.0 licence (permissive, with a notice to keep): {(File.Exists(Notice) ? "LICENSE-WordNet.txt, copied from " + Notice : "see " + Notice + " of the wordnet-base package")}.");
 File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
 Console.WriteLine(string.Create(inv, $"wrote {output}: {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test rows in {counts.Count} supersenses; {trainingText:N0} training-text definitions"));
 return 0;
