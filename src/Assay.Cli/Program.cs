@@ -5,4 +5,5 @@ var root = new RootCommand("assay: run GPT-2-family language models from safeten
 root.Subcommands.Add(InspectCommand.Create());
 root.Subcommands.Add(NextCommand.Create());
 root.Subcommands.Add(ExtractCommand.Create());
+root.Subcommands.Add(ManifestCommand.Create());
 return root.Parse(args).Invoke();

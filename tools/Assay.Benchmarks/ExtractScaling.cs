@@ -80,7 +80,7 @@ internal static class ExtractScaling
     private static void Extract(string model, string input, string run, string features)
     {
         var psi = new ProcessStartInfo("dotnet") { RedirectStandardOutput = true, RedirectStandardError = true };
-        foreach (string a in new[] { Path.Combine(AppContext.BaseDirectory, "assay.dll"), "extract", model, input, "--out", run, "--features", features, "--prompt", "{text} It is a kind of" })
+        foreach (string a in new[] { Path.Combine(AppContext.BaseDirectory, "assay.dll"), "extract", input, "--model", model, "--out", run, "--features", features, "--prompt", "{text} It is a kind of" })
         {
             psi.ArgumentList.Add(a);
         }

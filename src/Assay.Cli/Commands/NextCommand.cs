@@ -5,19 +5,19 @@ using Assay.Model;
 
 namespace Assay.Cli.Commands;
 
-/// <summary><c>assay next &lt;model-dir&gt; "&lt;text&gt;" --top N</c>: the most likely next tokens after a text.</summary>
+/// <summary><c>assay next "&lt;text&gt;" [--model &lt;dir&gt;] --top N</c>: the most likely next tokens after a text.</summary>
 internal static class NextCommand
 {
     public static Command Create()
     {
-        var folder = new Argument<DirectoryInfo>("model-dir") { Description = "Checkpoint folder." };
+        var folder = ModelOption.Create();
         var text = new Argument<string>("text") { Description = "The text to continue." };
         var top = new Option<int>("--top")
         {
             Description = "How many tokens to list.",
             DefaultValueFactory = _ => 10,
         };
-        var command = new Command("next", "List the most likely next tokens after a text, with their probabilities.") { folder, text, top };
+        var command = new Command("next", "List the most likely next tokens after a text, with their probabilities.") { text, folder, top };
         command.SetAction(r => CommandRunner.Run(() =>
             Run(r.GetValue(folder)!.FullName, r.GetValue(text)!, r.GetValue(top), Console.Out)));
         return command;

@@ -77,7 +77,8 @@ public sealed record ModelConfig
         }
     }
 
-    private static ModelConfig Parse(string path, JsonElement root)
+    /// <summary>Validates a config object read from <paramref name="path"/> (a config.json, or a manifest entry's architecture).</summary>
+    internal static ModelConfig Parse(string path, JsonElement root)
     {
         if (root.ValueKind != JsonValueKind.Object)
         {

@@ -69,7 +69,7 @@ public sealed class ExtractCommandTests
     {
         using var temp = new TempFolder();
         string input = ExtractionRunTests.WriteInput(temp, 1200);
-        string[] common = ["extract", Checkpoints.Folder(FeatureExtractorTests.Spec), input, "--prompt", "{text} It is a kind of",
+        string[] common = ["extract", input, "--model", Checkpoints.Folder(FeatureExtractorTests.Spec), "--prompt", "{text} It is a kind of",
             "--features", "hidden,hidden:1:mean,cmean,topk:5,completions", "--completions", WriteCompletions(temp), "--commit-rows", "8"];
 
         Assert.Equal(0, RunChild([.. common, "--out", temp.File("whole")], killAt: null).ExitCode);

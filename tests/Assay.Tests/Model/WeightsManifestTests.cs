@@ -7,21 +7,10 @@ namespace Assay.Tests.Model;
 /// <summary>Each weights-manifest entry's inventory is what its architecture implies.</summary>
 public sealed class WeightsManifestTests
 {
-    private static string ManifestFolder()
-    {
-        string? dir = AppContext.BaseDirectory;
-        while (dir is not null && !Directory.Exists(Path.Combine(dir, "weights-manifest")))
-        {
-            dir = Path.GetDirectoryName(dir);
-        }
-        Assert.NotNull(dir);
-        return Path.Combine(dir, "weights-manifest");
-    }
-
     [Fact]
     public void Gpt2_124m_entry_matches_its_architecture_and_the_published_count()
     {
-        string path = Path.Combine(ManifestFolder(), "gpt2-124m.json");
+        string path = Path.Combine(WeightsManifestPinTests.RepositoryManifest(), "gpt2-124m.json");
         using JsonDocument doc = JsonDocument.Parse(File.ReadAllText(path));
         JsonElement root = doc.RootElement;
         string config = Path.Combine(Path.GetTempPath(), "assay-manifest-config-" + Guid.NewGuid().ToString("N") + ".json");
