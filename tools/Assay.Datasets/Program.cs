@@ -5,14 +5,19 @@ using System.Text.Json;
 using Assay.Datasets;
 
 // assay-datasets wordnet-supersense <out-dir> [--data-noun PATH]
+// assay-datasets fortune-topics <out-dir> [--folder /usr/share/games/fortunes]
 // assay-datasets corpus <out-dir> [--austen RDATA.rdx] [--data-noun PATH]
+if (args.Length >= 2 && args[0] == "fortune-topics")
+{
+    return WriteFortunes(args[1], Option(args, "--folder") ?? FortuneTopics.DefaultFolder);
+}
 if (args.Length >= 2 && args[0] == "corpus")
 {
     return WriteCorpus(args[1], Option(args, "--austen"), Option(args, "--data-noun") ?? WordNetNouns.DefaultPath);
 }
 if (args.Length is not (2 or 4) || args[0] != "wordnet-supersense" || (args.Length == 4 && args[2] != "--data-noun"))
 {
-    Console.Error.WriteLine("usage: assay-datasets wordnet-supersense <out-dir> [--data-noun /usr/share/wordnet/data.noun]\n       assay-datasets corpus <out-dir> [--austen Rdata.rdx] [--data-noun /usr/share/wordnet/data.noun]");
+    Console.Error.WriteLine("usage: assay-datasets wordnet-supersense <out-dir> [--data-noun /usr/share/wordnet/data.noun]\n       assay-datasets fortune-topics <out-dir> [--folder /usr/share/games/fortunes]\n       assay-datasets corpus <out-dir> [--austen Rdata.rdx] [--data-noun /usr/share/wordnet/data.noun]");
     return 2;
 }
 string output = args[1];
@@ -148,4 +153,46 @@ static void Run(string program, string folder, params string[] args)
     {
         throw new InvalidOperationException($"{program} {string.Join(' ', args)} exited {p.ExitCode}; pass --austen with the path of janeaustenr's data/Rdata.rdx");
     }
+}
+
+static int WriteFortunes(string output, string folder)
+{
+    Directory.CreateDirectory(output);
+    var counts = new SortedDictionary<string, int[]>(StringComparer.Ordinal);
+    using (var train = new StreamWriter(Path.Combine(output, "train.jsonl")))
+    using (var test = new StreamWriter(Path.Combine(output, "test.jsonl")))
+    {
+        foreach (Fortune f in FortuneTopics.Read(folder))
+        {
+            bool isTest = FortuneTopics.IsTest(f);
+            (isTest ? test : train).WriteLine(JsonSerializer.Serialize(new { id = $"{f.Topic}-{f.Index}", text = f.Text, label = f.Topic }));
+            if (!counts.TryGetValue(f.Topic, out int[]? c))
+            {
+                counts[f.Topic] = c = new int[2];
+            }
+            c[isTest ? 1 : 0]++;
+        }
+    }
+    CultureInfo inv = CultureInfo.InvariantCulture;
+    var readme = new StringBuilder();
+    readme.AppendLine("# Fortune-file entries by topic");
+    readme.AppendLine();
+    readme.AppendLine(inv, $"Built by `assay-datasets fortune-topics` from `{folder}` (Debian packages fortunes, fortunes-min): the 17 topical");
+    readme.AppendLine("English files; entries split at lines that are exactly `%`, trimmed, empty ones skipped, trailing attribution lines");
+    readme.AppendLine("(`-- Name` and their indented continuation) removed. `label` is the file name. Test split: first byte of");
+    readme.AppendLine("SHA-256(\"fortunes/\" + topic + \"/\" + index) below 52 (about 20 %).");
+    readme.AppendLine();
+    readme.AppendLine(inv, $"Counts: {counts.Values.Sum(c => c[0] + c[1]):N0} entries = {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test.");
+    readme.AppendLine();
+    readme.AppendLine("| label | train | test |");
+    readme.AppendLine("|---|---:|---:|");
+    foreach ((string label, int[] c) in counts)
+    {
+        readme.AppendLine(inv, $"| {label} | {c[0]:N0} | {c[1]:N0} |");
+    }
+    readme.AppendLine();
+    readme.AppendLine("Licence: the collection is distributed under the BSD licence of the fortune package (see /usr/share/doc/fortunes/copyright).");
+    File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
+    Console.WriteLine(string.Create(inv, $"wrote {output}: {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test rows in {counts.Count} topics"));
+    return 0;
 }
