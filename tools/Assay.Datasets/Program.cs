@@ -27,15 +27,13 @@ var counts = new SortedDictionary<string, int[]>(StringComparer.Ordinal);   // l
 int trainingText = 0;
 using (var train = new StreamWriter(Path.Combine(output, "train.jsonl")))
 using (var test = new StreamWriter(Path.Combine(output, "test.jsonl")))
-using (var glosses = new StreamWriter(Path.Combine(output, "training-text.txt")))
 {
     foreach (NounSynset s in WordNetNouns.Read(source))
     {
         (bool evaluation, bool isTest) = WordNetNouns.Split(s.Offset);
         if (!evaluation)
         {
-            glosses.WriteLine(s.Definition);
-            trainingText++;
+            trainingText++;   // the training-text half: `assay-datasets corpus` writes it for the trainer
             continue;
         }
         (isTest ? test : train).WriteLine(JsonSerializer.Serialize(new { id = "n" + s.Offset, text = s.Definition, label = s.Supersense, word = s.FirstWord }));
@@ -55,9 +53,10 @@ readme.AppendLine(inv, $"Built by `assay-datasets wordnet-supersense` from `{sou
 readme.AppendLine("Each line of train.jsonl / test.jsonl: `id` (n + synset offset), `text` (the definition: the gloss up to its first");
 readme.AppendLine("quoted example), `label` (the supersense, WordNet's lexicographer file), `word` (the synset's first word).");
 readme.AppendLine("Split by a fixed hash of the synset offset: SHA-256(\"wordnet-3.0/noun/\" + offset), first byte even = training-text");
-readme.AppendLine("half (training-text.txt: definitions a model may be trained on), odd = evaluation half, of which second byte < 52 = test.");
+readme.AppendLine("half (definitions a model may be trained on: `assay-datasets corpus` writes them), odd = evaluation half, of which");
+readme.AppendLine("second byte < 52 = test. No definition of the evaluation half is in the training text.");
 readme.AppendLine();
-readme.AppendLine(inv, $"Counts: {trainingText:N0} training-text definitions; evaluation half {counts.Values.Sum(c => c[0] + c[1]):N0} = {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test.");
+readme.AppendLine(inv, $"Counts: {trainingText:N0} definitions in the training-text half; evaluation half {counts.Values.Sum(c => c[0] + c[1]):N0} = {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test.");
 readme.AppendLine();
 readme.AppendLine("| label | train | test |");
 readme.AppendLine("|---|---:|---:|");
@@ -74,7 +73,7 @@ if (File.Exists(Notice))
 }
 readme.AppendLine(inv, $"Licence: the WordNet 3.0 licence (permissive, with a notice to keep): {(File.Exists(Notice) ? "LICENSE-WordNet.txt, copied from " + Notice : "see " + Notice + " of the wordnet-base package")}.");
 File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
-Console.WriteLine(string.Create(inv, $"wrote {output}: {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test rows in {counts.Count} supersenses; {trainingText:N0} training-text definitions"));
+Console.WriteLine(string.Create(inv, $"wrote {output}: {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test rows in {counts.Count} supersenses; {trainingText:N0} definitions left to the training text"));
 return 0;
 
 static string? Option(string[] args, string name)
@@ -191,7 +190,12 @@ static int WriteFortunes(string output, string folder)
         readme.AppendLine(inv, $"| {label} | {c[0]:N0} | {c[1]:N0} |");
     }
     readme.AppendLine();
-    readme.AppendLine("Licence: the collection is distributed under the BSD licence of the fortune package (see /usr/share/doc/fortunes/copyright).");
+    const string Notice = "/usr/share/doc/fortunes/copyright";
+    if (File.Exists(Notice))
+    {
+        File.Copy(Notice, Path.Combine(output, "LICENSE-fortunes.txt"), overwrite: true);
+    }
+    readme.AppendLine("Licence: the BSD licence of the fortune collection; its notice is in LICENSE-fortunes.txt (copied from " + Notice + ").");
     File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
     Console.WriteLine(string.Create(inv, $"wrote {output}: {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test rows in {counts.Count} topics"));
     return 0;
