@@ -6,4 +6,5 @@ root.Subcommands.Add(InspectCommand.Create());
 root.Subcommands.Add(NextCommand.Create());
 root.Subcommands.Add(ExtractCommand.Create());
 root.Subcommands.Add(ManifestCommand.Create());
+root.Subcommands.Add(ProbeCommand.Create());
 return root.Parse(args).Invoke();

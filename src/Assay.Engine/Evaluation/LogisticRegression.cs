@@ -1,0 +1,150 @@
+using MathNet.Numerics.LinearAlgebra;
+using MathNet.Numerics.Optimization;
+
+namespace Assay.Evaluation;
+
+/// <summary>
+/// Multinomial logistic regression with an L2 penalty on the weights (not the intercepts), fitted by MathNet.Numerics'
+/// L-BFGS. It minimizes C · Σ_i −log softmax(W·x_i + b)[y_i] + ½‖W‖², the objective of scikit-learn's
+/// LogisticRegression(multi_class="multinomial", penalty="l2", C) — scaled here by 1/(C·n), which moves no minimum,
+/// so the tolerances do not depend on n. The intercepts are determined up to a common constant; they are centred.
+/// </summary>
+internal sealed class LogisticRegression
+{
+    private LogisticRegression(int classes, int features, double[] weights, double[] intercepts, int iterations)
+    {
+        Classes = classes;
+        Features = features;
+        Weights = weights;
+        Intercepts = intercepts;
+        Iterations = iterations;
+    }
+
+    public int Classes { get; }
+
+    public int Features { get; }
+
+    /// <summary>W, classes × features, row-major.</summary>
+    public double[] Weights { get; }
+
+    /// <summary>b, one per class, summing to 0.</summary>
+    public double[] Intercepts { get; }
+
+    /// <summary>L-BFGS iterations taken.</summary>
+    public int Iterations { get; }
+
+    /// <summary>Fits n rows of d features (row-major) with labels 0 … k−1.</summary>
+    /// <exception cref="ArgumentException">Shapes disagree, a label is out of range, or C is not positive.</exception>
+    public static LogisticRegression Fit(double[] x, int n, int d, int[] y, int classes, double c, int maxIterations = 1000, double tolerance = 1e-8)
+    {
+        if (x.Length != (long)n * d || y.Length != n || n == 0)
+        {
+            throw new ArgumentException($"expected {n} × {d} features and {n} labels; got {x.Length} values and {y.Length} labels");
+        }
+        if (c <= 0 || !double.IsFinite(c))
+        {
+            throw new ArgumentException($"C = {c}: expected a positive regularization strength");
+        }
+        foreach (int label in y)
+        {
+            if ((uint)label >= (uint)classes)
+            {
+                throw new ArgumentException($"label {label} is outside 0 … {classes - 1}");
+            }
+        }
+
+        int k = classes;
+        double scale = 1.0 / n, penalty = 1.0 / (c * n);
+        var objective = ObjectiveFunction.Gradient(theta =>
+        {
+            double[] t = theta.AsArray() ?? theta.ToArray();
+            double[] grad = new double[t.Length];
+            double loss = 0;
+            double[] z = new double[k];
+            for (int i = 0; i < n; i++)
+            {
+                ReadOnlySpan<double> xi = x.AsSpan(i * d, d);
+                double max = double.NegativeInfinity;
+                for (int j = 0; j < k; j++)
+                {
+                    double s = t[(k * d) + j];
+                    ReadOnlySpan<double> w = t.AsSpan(j * d, d);
+                    for (int f = 0; f < d; f++)
+                    {
+                        s += w[f] * xi[f];
+                    }
+                    z[j] = s;
+                    max = Math.Max(max, s);
+                }
+                double sum = 0;
+                for (int j = 0; j < k; j++)
+                {
+                    z[j] = Math.Exp(z[j] - max);
+                    sum += z[j];
+                }
+                loss += Math.Log(sum) + max - (Math.Log(z[y[i]]) + max);
+                for (int j = 0; j < k; j++)
+                {
+                    double r = ((z[j] / sum) - (j == y[i] ? 1 : 0)) * scale;
+                    Span<double> g = grad.AsSpan(j * d, d);
+                    for (int f = 0; f < d; f++)
+                    {
+                        g[f] += r * xi[f];
+                    }
+                    grad[(k * d) + j] += r;
+                }
+            }
+            double norm = 0;
+            for (int i = 0; i < k * d; i++)
+            {
+                norm += t[i] * t[i];
+                grad[i] += penalty * t[i];
+            }
+            return ((loss * scale) + (0.5 * penalty * norm), Vector<double>.Build.Dense(grad));
+        });
+
+        var minimizer = new LimitedMemoryBfgsMinimizer(tolerance, tolerance, tolerance, 10, maxIterations);
+        MinimizationResult result = minimizer.FindMinimum(objective, Vector<double>.Build.Dense((k * d) + k));
+        double[] theta = result.MinimizingPoint.ToArray();
+        double[] intercepts = theta[(k * d)..];
+        double mean = intercepts.Average();
+        for (int j = 0; j < k; j++)
+        {
+            intercepts[j] -= mean;
+        }
+        return new LogisticRegression(k, d, theta[..(k * d)], intercepts, result.Iterations);
+    }
+
+    /// <summary>A fitted model from its parameters (as a saved probe holds them).</summary>
+    public static LogisticRegression FromParameters(int classes, int features, double[] weights, double[] intercepts) =>
+        weights.Length == classes * features && intercepts.Length == classes
+            ? new LogisticRegression(classes, features, weights, intercepts, 0)
+            : throw new ArgumentException($"expected {classes} × {features} weights and {classes} intercepts");
+
+    /// <summary>Class probabilities of one row.</summary>
+    public void Probabilities(ReadOnlySpan<double> row, Span<double> p)
+    {
+        double max = double.NegativeInfinity;
+        for (int j = 0; j < Classes; j++)
+        {
+            double s = Intercepts[j];
+            ReadOnlySpan<double> w = Weights.AsSpan(j * Features, Features);
+            for (int f = 0; f < Features; f++)
+            {
+                s += w[f] * row[f];
+            }
+            p[j] = s;
+            max = Math.Max(max, s);
+        }
+        double sum = 0;
+        for (int j = 0; j < Classes; j++)
+        {
+            p[j] = Math.Exp(p[j] - max);
+            sum += p[j];
+        }
+        for (int j = 0; j < Classes; j++)
+        {
+            p[j] /= sum;
+        }
+    }
+}
