@@ -11,11 +11,8 @@ public sealed record ProbeOptions
     /// <summary>Folds of the stratified cross-validation.</summary>
     public int Folds { get; init; } = 5;
 
-    /// <summary>Seed of the fold assignment and the bootstrap.</summary>
+    /// <summary>Seed of the fold assignment.</summary>
     public ulong Seed { get; init; } = 1;
-
-    /// <summary>Bootstrap resamples for the 95 % interval of the accuracy.</summary>
-    public int BootstrapSamples { get; init; } = 1000;
 }
 
 /// <summary>
