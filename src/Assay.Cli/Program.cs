@@ -7,4 +7,5 @@ root.Subcommands.Add(NextCommand.Create());
 root.Subcommands.Add(ExtractCommand.Create());
 root.Subcommands.Add(ManifestCommand.Create());
 root.Subcommands.Add(ProbeCommand.Create());
+root.Subcommands.Add(CrossEntropyCommand.Create());
 return root.Parse(args).Invoke();

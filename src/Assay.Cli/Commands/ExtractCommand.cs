@@ -93,15 +93,7 @@ internal static class ExtractCommand
         {
             throw new ArgumentException($"--prompt: {e.Message}", e);
         }
-        InputFormat format = q.Format switch
-        {
-            "auto" => InputFormat.Auto,
-            "lines" or "text" => InputFormat.Lines,
-            "jsonl" => InputFormat.JsonLines,
-            "csv" => InputFormat.Csv,
-            "tsv" => InputFormat.Tsv,
-            _ => throw new ArgumentException($"--format {q.Format}: expected auto, lines, jsonl, csv or tsv"),
-        };
+        InputFormat format = Format(q.Format);
         TextTruncation truncation = q.Keep switch
         {
             "head" => TextTruncation.KeepHead,
@@ -157,6 +149,17 @@ internal static class ExtractCommand
         PrintSummary(o, q.Output, summary);
         return 0;
     }
+
+    /// <summary>The --format names.</summary>
+    internal static InputFormat Format(string name) => name switch
+    {
+        "auto" => InputFormat.Auto,
+        "lines" or "text" => InputFormat.Lines,
+        "jsonl" => InputFormat.JsonLines,
+        "csv" => InputFormat.Csv,
+        "tsv" => InputFormat.Tsv,
+        _ => throw new ArgumentException($"--format {name}: expected auto, lines, jsonl, csv or tsv"),
+    };
 
     private static void PrintSummary(TextWriter o, string folder, RunSummary s)
     {

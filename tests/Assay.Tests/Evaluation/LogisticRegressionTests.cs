@@ -1,7 +1,6 @@
 using System.Text.Json;
 using Assay.Evaluation;
 using Assay.Fixtures;
-using Assay.Output;
 using Assay.Tests.Support;
 
 namespace Assay.Tests.Evaluation;
@@ -33,8 +32,8 @@ public sealed class LogisticRegressionTests
         LogisticRegression model = LogisticRegression.Fit(x, n, d, y, classes, c);
 
         using var temp = new TempFolder();
-        WriteNpy(temp.File("x.npy"), x, d);
-        WriteNpy(temp.File("y.npy"), [.. y.Select(v => (double)v)], 1);
+        Npy.WriteFloat64(temp.File("x.npy"), x, d);
+        Npy.WriteFloat64(temp.File("y.npy"), [.. y.Select(v => (double)v)], 1);
         using JsonDocument sk = JsonDocument.Parse(PythonReference.Run("logistic_sklearn.py", temp.File("x.npy"), temp.File("y.npy"), c.ToString("R", System.Globalization.CultureInfo.InvariantCulture)));
         double[][] coef = [.. sk.RootElement.GetProperty("coef").EnumerateArray().Select(r => r.EnumerateArray().Select(v => v.GetDouble()).ToArray())];
         double[] intercept = [.. sk.RootElement.GetProperty("intercept").EnumerateArray().Select(v => v.GetDouble())];
@@ -62,12 +61,5 @@ public sealed class LogisticRegressionTests
             loss -= Math.Log(p[y[i]]);
         }
         return (c * loss) + (0.5 * m.Weights.Sum(w => w * w));
-    }
-
-    private static void WriteNpy(string path, double[] values, int width)
-    {
-        using var npy = NpyAppender.Create(path, "<f8", width, 8);
-        npy.Append(System.Runtime.InteropServices.MemoryMarshal.AsBytes(values.AsSpan()));
-        npy.Commit(values.Length / width);
     }
 }

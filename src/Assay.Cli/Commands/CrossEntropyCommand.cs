@@ -1,0 +1,54 @@
+using System.CommandLine;
+using System.Globalization;
+using Assay.Evaluation;
+using Assay.Input;
+using Assay.Model;
+
+namespace Assay.Cli.Commands;
+
+/// <summary><c>assay cross-entropy &lt;input&gt; [--model &lt;dir&gt;] [--stride N]</c>: the model's cross-entropy on a corpus.</summary>
+internal static class CrossEntropyCommand
+{
+    public static Command Create()
+    {
+        var input = new Argument<FileInfo>("input") { Description = "Texts: plain lines, JSONL, CSV or TSV (as for extract)." };
+        var model = ModelOption.Create();
+        var stride = new Option<int?>("--stride") { Description = "Window stride for texts longer than the context (default: the context length)." };
+        var format = new Option<string>("--format") { Description = "auto, lines, jsonl, csv or tsv.", DefaultValueFactory = _ => "auto" };
+        var textField = new Option<string>("--text-field") { Description = "JSONL field or CSV column of the text.", DefaultValueFactory = _ => "text" };
+        var command = new Command("cross-entropy", "The model's next-token cross-entropy on a corpus: nats per token, bits per byte and perplexity.")
+        {
+            input, model, stride, format, textField,
+        };
+        command.SetAction(r => CommandRunner.Run(() => Run(r.GetValue(model)!.FullName, r.GetValue(input)!.FullName, r.GetValue(stride),
+            ExtractCommand.Format(r.GetValue(format)!), r.GetValue(textField)!, Console.Out)));
+        return command;
+    }
+
+    internal static int Run(string folder, string input, int? stride, InputFormat format, string textField, TextWriter o)
+    {
+        LanguageModel m = LanguageModel.Open(folder);
+        using TextInputReader reader = TextInputReader.Open(input, format, new InputFields { Text = textField });
+        long rejected = 0;
+        IEnumerable<string> Texts()
+        {
+            foreach (InputRecord r in reader.Records())
+            {
+                if (r.Accepted)
+                {
+                    yield return r.Text!;
+                }
+                else
+                {
+                    rejected++;
+                }
+            }
+        }
+        CrossEntropyResult s = CrossEntropy.Score(m, Texts(), stride);
+        CultureInfo inv = CultureInfo.InvariantCulture;
+        o.WriteLine(string.Create(inv, $"texts          {s.Texts:N0} scored ({rejected:N0} rejected records skipped)"));
+        o.WriteLine(string.Create(inv, $"tokens         {s.Tokens:N0} predicted, {s.Bytes:N0} UTF-8 bytes"));
+        o.WriteLine(string.Create(inv, $"cross-entropy  {s.NatsPerToken:F4} nats/token, {s.BitsPerByte:F4} bits/byte, perplexity {s.Perplexity:F2}"));
+        return 0;
+    }
+}

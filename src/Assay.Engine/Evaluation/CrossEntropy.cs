@@ -1,0 +1,84 @@
+using System.Text;
+using Assay.Model;
+
+namespace Assay.Evaluation;
+
+/// <summary>A model's cross-entropy on a corpus: nats per token, bits per UTF-8 byte, perplexity.</summary>
+/// <param name="Texts">Texts scored.</param>
+/// <param name="Tokens">Tokens predicted (each text's tokens; the end-of-text token before each text is context only).</param>
+/// <param name="Bytes">UTF-8 bytes of the texts.</param>
+/// <param name="Nats">Total −log p over the predicted tokens, natural log.</param>
+public sealed record CrossEntropyResult(long Texts, long Tokens, long Bytes, double Nats)
+{
+    /// <summary>Mean nats per token.</summary>
+    public double NatsPerToken => Nats / Tokens;
+
+    /// <summary>Total bits over total UTF-8 bytes, comparable across tokenizers.</summary>
+    public double BitsPerByte => Nats / Math.Log(2) / Bytes;
+
+    /// <summary>exp(nats per token).</summary>
+    public double Perplexity => Math.Exp(NatsPerToken);
+}
+
+/// <summary>
+/// Scores texts under a model. Each text is preceded by the end-of-text token (so its first token is predicted too,
+/// as documents follow one another in GPT-2-style training) and scored alone. A text longer than the context is
+/// scored in windows of the context length that start every <c>stride</c> tokens (a window starts earlier when it
+/// must, so the first token it scores has at least one token of context); each token is scored once, in the first
+/// window that reaches it, with the context that window gives (common practice for strided perplexity: a smaller stride
+/// gives each token more context and costs more passes).
+/// </summary>
+public static class CrossEntropy
+{
+    /// <exception cref="ArgumentException">The stride is not in 1 … context length.</exception>
+    public static CrossEntropyResult Score(LanguageModel model, IEnumerable<string> texts, int? stride = null)
+    {
+        ArgumentNullException.ThrowIfNull(model);
+        ArgumentNullException.ThrowIfNull(texts);
+        int context = model.Config.ContextLength;
+        int step = stride ?? context;
+        if (step < 1 || step > context)
+        {
+            throw new ArgumentException($"stride {step}: expected 1 … {context} (the context length)", nameof(stride));
+        }
+        long count = 0, tokens = 0, bytes = 0;
+        double nats = 0;
+        float[] scratch = new float[model.Config.VocabularySize];
+        foreach (string text in texts)
+        {
+            int[] ids = [model.Tokenizer.EndOfTextId, .. model.Tokenizer.Encode(text)];
+            count++;
+            bytes += Encoding.UTF8.GetByteCount(text);
+            int scoredUpTo = 1;   // targets before this index are scored
+            for (int begin = 0; scoredUpTo < ids.Length; begin = Math.Min(begin + step, scoredUpTo - 1))
+            {
+                int end = Math.Min(begin + context, ids.Length);
+                ForwardResult r = model.Forward([ids[begin..end]], new ForwardOptions { Logits = LogitPositions.All });
+                for (int target = Math.Max(begin + 1, scoredUpTo); target < end; target++)
+                {
+                    r.Logits(0, target - 1 - begin).CopyTo(scratch);
+                    nats -= LogSoftmaxAt(scratch, ids[target]);
+                    tokens++;
+                }
+                scoredUpTo = end;
+            }
+        }
+        return new CrossEntropyResult(count, tokens, bytes, nats);
+    }
+
+    /// <summary>log softmax(x)[index] = x[index] − max − ln Σ exp(x − max), summed in float64.</summary>
+    private static double LogSoftmaxAt(ReadOnlySpan<float> x, int index)
+    {
+        double max = double.NegativeInfinity;
+        foreach (float v in x)
+        {
+            max = Math.Max(max, v);
+        }
+        double sum = 0;
+        foreach (float v in x)
+        {
+            sum += Math.Exp(v - max);
+        }
+        return x[index] - max - Math.Log(sum);
+    }
+}
