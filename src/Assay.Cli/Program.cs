@@ -8,4 +8,5 @@ root.Subcommands.Add(ExtractCommand.Create());
 root.Subcommands.Add(ManifestCommand.Create());
 root.Subcommands.Add(ProbeCommand.Create());
 root.Subcommands.Add(CrossEntropyCommand.Create());
+root.Subcommands.Add(ZeroShotCommand.Create());
 return root.Parse(args).Invoke();

@@ -1,0 +1,93 @@
+using System.CommandLine;
+using System.Globalization;
+using Assay.Evaluation;
+using Assay.Features;
+using Assay.Input;
+using Assay.Model;
+
+namespace Assay.Cli.Commands;
+
+/// <summary>
+/// <c>assay zero-shot &lt;input&gt; --verbalizer FILE --prompt "…"</c>: classifies each labelled text by the label whose words are
+/// likeliest after the prompt, with no training, and reports accuracy, log loss, macro-F1 and the confusion matrix.
+/// </summary>
+internal static class ZeroShotCommand
+{
+    public static Command Create()
+    {
+        var input = new Argument<FileInfo>("input") { Description = "Labelled texts: JSONL, CSV or TSV with a label field." };
+        var model = ModelOption.Create();
+        var verbalizer = new Option<FileInfo>("--verbalizer") { Description = "Label words: one line per label, \"label: word, word\".", Required = true };
+        var prompt = new Option<string>("--prompt") { Description = "Template ending where the label word should follow, e.g. \"{text} It is a kind of\".", Required = true };
+        var full = new Option<bool>("--full-words") { Description = "Score each word by the likelihood of all its tokens (default: its first token's probability)." };
+        var format = new Option<string>("--format") { Description = "auto, lines, jsonl, csv or tsv.", DefaultValueFactory = _ => "auto" };
+        var textField = new Option<string>("--text-field") { DefaultValueFactory = _ => "text", Description = "Field of the text." };
+        var labelField = new Option<string>("--label-field") { DefaultValueFactory = _ => "label", Description = "Field of the label." };
+        var command = new Command("zero-shot", "Classify labelled texts by the likeliest label words after a prompt (no training) and report accuracy.")
+        {
+            input, model, verbalizer, prompt, full, format, textField, labelField,
+        };
+        command.SetAction(r => CommandRunner.Run(() => Run(r.GetValue(model)!.FullName, r.GetValue(input)!.FullName, r.GetValue(verbalizer)!.FullName,
+            r.GetValue(prompt)!, r.GetValue(full), ExtractCommand.Format(r.GetValue(format)!), r.GetValue(textField)!, r.GetValue(labelField)!, Console.Out)));
+        return command;
+    }
+
+    internal static int Run(string folder, string input, string verbalizerPath, string prompt, bool fullWords, InputFormat format,
+        string textField, string labelField, TextWriter o)
+    {
+        Verbalizer v = Verbalizer.Load(verbalizerPath);
+        LanguageModel m = LanguageModel.Open(folder);
+        var extractor = new FeatureExtractor(m, new ExtractionOptions
+        {
+            Prompt = PromptTemplate.Parse(prompt),
+            Features = [new WordListFeature(v.AllWords, fullWords)],
+        });
+        int output = fullWords ? 1 : 0;
+        var index = v.Labels.Select((l, i) => (l, i)).ToDictionary(x => x.l, x => x.i, StringComparer.Ordinal);
+        using TextInputReader reader = TextInputReader.Open(input, format, new InputFields { Text = textField, Label = labelField, LabelRequired = true });
+        var truth = new List<int>();
+        var texts = new List<string>();
+        long skipped = 0;
+        foreach (InputRecord r in reader.Records())
+        {
+            if (r.Accepted && index.TryGetValue(r.Label, out int label))
+            {
+                truth.Add(label);
+                texts.Add(r.Text!);
+            }
+            else
+            {
+                skipped++;
+            }
+        }
+        int k = v.Labels.Count;
+        double[] p = new double[truth.Count * k];
+        int row = 0;
+        foreach (FeatureRow f in extractor.Extract(texts))
+        {
+            Span<double> scores = p.AsSpan(row * k, k);
+            v.Scores(f.Values(output), fullWords, scores);
+            double sum = 0;
+            foreach (double s in scores)
+            {
+                sum += s;
+            }
+            for (int j = 0; j < k; j++)
+            {
+                scores[j] /= sum;   // the label scores renormalized into a distribution over the labels
+            }
+            row++;
+        }
+        ProbeReport score = ProbeReport.Score(p, [.. truth], k);
+        CultureInfo inv = CultureInfo.InvariantCulture;
+        o.WriteLine(string.Create(inv, $"{score.Rows:N0} texts ({skipped:N0} records skipped: rejected, or a label the verbalizer lacks), {k} labels, scored by {(fullWords ? "the likelihood of whole words" : "first-token probability")}"));
+        o.WriteLine(string.Create(inv, $"accuracy {score.Accuracy:P2} (95 % bootstrap {score.AccuracyLow:P2} – {score.AccuracyHigh:P2}), log loss {score.LogLoss:F4}, macro-F1 {score.MacroF1:F4}; chance {1.0 / k:P2}"));
+        o.WriteLine("confusion (rows: true label, columns: predicted)");
+        o.WriteLine(string.Join(' ', v.Labels));
+        for (int i = 0; i < k; i++)
+        {
+            o.WriteLine(string.Join(' ', Enumerable.Range(0, k).Select(j => score.Confusion[i, j].ToString(inv))));
+        }
+        return 0;
+    }
+}
