@@ -11,7 +11,7 @@ internal sealed record Fortune(string Topic, int Index, string Text);
 /// <summary>
 /// Reads the topical fortune files of Debian's fortunes and fortunes-min packages (strfile(1) format: entries separated
 /// by a line that is exactly "%"; each file's .dat holds the entry count as a big-endian uint32 at byte 4). Entries are
-/// trimmed, empty ones skipped, and trailing attribution lines ("-- Name") stripped, since they would give the topic
+/// trimmed, empty ones skipped, and attribution lines ("-- Name" ending a paragraph) stripped, since they would give the topic
 /// away.
 /// </summary>
 internal static partial class FortuneTopics
@@ -62,11 +62,17 @@ internal static partial class FortuneTopics
         foreach (string raw in Split(text))
         {
             var lines = raw.Split('\n').Select(l => l.TrimEnd('\r')).ToList();
-            // An attribution is a "-- Name" line, possibly continued by indented lines, at the end of the entry.
-            int attribution = lines.FindLastIndex(l => Attribution().IsMatch(l));
-            if (attribution > 0 && lines.Skip(attribution + 1).All(l => l.Trim().Length == 0 || char.IsWhiteSpace(l[0])))
+            // An attribution is a "-- Name" line, possibly continued by indented lines, at the end of a paragraph:
+            // compound entries hold several quotes, each with its own.
+            for (int end = lines.Count; end > 0;)
             {
-                lines.RemoveRange(attribution, lines.Count - attribution);
+                int start = lines.FindLastIndex(end - 1, end, l => l.Trim().Length == 0) + 1;   // the paragraph [start, end)
+                int attribution = lines.FindLastIndex(end - 1, end - start, l => Attribution().IsMatch(l));
+                if (attribution > start && lines.Skip(attribution + 1).Take(end - attribution - 1).All(l => char.IsWhiteSpace(l[0])))
+                {
+                    lines.RemoveRange(attribution, end - attribution);
+                }
+                end = start - 1;
             }
             string entry = string.Join("\n", lines).Trim();
             if (entry.Length > 0)

@@ -177,8 +177,8 @@ static int WriteFortunes(string output, string folder)
     readme.AppendLine("# Fortune-file entries by topic");
     readme.AppendLine();
     readme.AppendLine(inv, $"Built by `assay-datasets fortune-topics` from `{folder}` (Debian packages fortunes, fortunes-min): the 17 topical");
-    readme.AppendLine("English files; entries split at lines that are exactly `%`, trimmed, empty ones skipped, trailing attribution lines");
-    readme.AppendLine("(`-- Name` and their indented continuation) removed. `label` is the file name. Test split: first byte of");
+    readme.AppendLine("English files; entries split at lines that are exactly `%`, trimmed, empty ones skipped, attribution lines");
+    readme.AppendLine("(`-- Name` ending a paragraph, and its indented continuation) removed. `label` is the file name. Test split: first byte of");
     readme.AppendLine("SHA-256(\"fortunes/\" + topic + \"/\" + index) below 52 (about 20 %).");
     readme.AppendLine();
     readme.AppendLine(inv, $"Counts: {counts.Values.Sum(c => c[0] + c[1]):N0} entries = {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test.");
