@@ -11,6 +11,9 @@ namespace Assay.Evaluation;
 /// </summary>
 internal sealed class LogisticRegression
 {
+    /// <summary>Rows per parallel work item of the objective.</summary>
+    private const int RowsPerChunk = 256;
+
     private LogisticRegression(int classes, int features, double[] weights, double[] intercepts, int iterations)
     {
         Classes = classes;
@@ -55,46 +58,35 @@ internal sealed class LogisticRegression
 
         int k = classes;
         double scale = 1.0 / n, penalty = 1.0 / (c * n);
+        int chunks = (n + RowsPerChunk - 1) / RowsPerChunk;
         var objective = ObjectiveFunction.Gradient(theta =>
         {
             double[] t = theta.AsArray() ?? theta.ToArray();
+            // Rows in fixed chunks, each summed on its own and the chunks added in order: the same value whatever
+            // the thread count.
+            double[][] grads = new double[chunks][];
+            double[] losses = new double[chunks];
+            Parallel.For(0, chunks, chunk =>
+            {
+                grads[chunk] = new double[t.Length];
+                losses[chunk] = Accumulate(t, x, y, d, k, chunk * RowsPerChunk, Math.Min(n, (chunk + 1) * RowsPerChunk), grads[chunk]);
+            });
             double[] grad = new double[t.Length];
             double loss = 0;
-            double[] z = new double[k];
-            for (int i = 0; i < n; i++)
+            for (int chunk = 0; chunk < chunks; chunk++)
             {
-                ReadOnlySpan<double> xi = x.AsSpan(i * d, d);
-                double max = double.NegativeInfinity;
-                for (int j = 0; j < k; j++)
+                loss += losses[chunk];
+                double[] g = grads[chunk];
+                for (int i = 0; i < grad.Length; i++)
                 {
-                    double s = t[(k * d) + j];
-                    ReadOnlySpan<double> w = t.AsSpan(j * d, d);
-                    for (int f = 0; f < d; f++)
-                    {
-                        s += w[f] * xi[f];
-                    }
-                    z[j] = s;
-                    max = Math.Max(max, s);
-                }
-                double sum = 0;
-                for (int j = 0; j < k; j++)
-                {
-                    z[j] = Math.Exp(z[j] - max);
-                    sum += z[j];
-                }
-                loss += Math.Log(sum) + max - (Math.Log(z[y[i]]) + max);
-                for (int j = 0; j < k; j++)
-                {
-                    double r = ((z[j] / sum) - (j == y[i] ? 1 : 0)) * scale;
-                    Span<double> g = grad.AsSpan(j * d, d);
-                    for (int f = 0; f < d; f++)
-                    {
-                        g[f] += r * xi[f];
-                    }
-                    grad[(k * d) + j] += r;
+                    grad[i] += g[i];
                 }
             }
             double norm = 0;
+            for (int i = 0; i < grad.Length; i++)
+            {
+                grad[i] *= scale;
+            }
             for (int i = 0; i < k * d; i++)
             {
                 norm += t[i] * t[i];
@@ -113,6 +105,39 @@ internal sealed class LogisticRegression
             intercepts[j] -= mean;
         }
         return new LogisticRegression(k, d, theta[..(k * d)], intercepts, result.Iterations);
+    }
+
+    /// <summary>Σ −log softmax(W·x_i + b)[y_i] over rows [start, end), adding the unscaled gradient to <paramref name="grad"/>.</summary>
+    private static double Accumulate(double[] t, double[] x, int[] y, int d, int k, int start, int end, double[] grad)
+    {
+        double loss = 0;
+        double[] z = new double[k];
+        for (int i = start; i < end; i++)
+        {
+            ReadOnlySpan<double> xi = x.AsSpan(i * d, d);
+            double max = double.NegativeInfinity;
+            for (int j = 0; j < k; j++)
+            {
+                double s = t[(k * d) + j] + System.Numerics.Tensors.TensorPrimitives.Dot(t.AsSpan(j * d, d), xi);
+                z[j] = s;
+                max = Math.Max(max, s);
+            }
+            double sum = 0;
+            for (int j = 0; j < k; j++)
+            {
+                z[j] = Math.Exp(z[j] - max);
+                sum += z[j];
+            }
+            loss += Math.Log(sum) - Math.Log(z[y[i]]);
+            for (int j = 0; j < k; j++)
+            {
+                double r = (z[j] / sum) - (j == y[i] ? 1 : 0);
+                Span<double> g = grad.AsSpan(j * d, d);
+                System.Numerics.Tensors.TensorPrimitives.MultiplyAdd(xi, r, g, g);
+                grad[(k * d) + j] += r;
+            }
+        }
+        return loss;
     }
 
     /// <summary>A fitted model from its parameters (as a saved probe holds them).</summary>
