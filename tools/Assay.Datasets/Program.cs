@@ -58,20 +58,10 @@ readme.AppendLine("second byte < 52 = test. No definition of the evaluation half
 readme.AppendLine();
 readme.AppendLine(inv, $"Counts: {trainingText:N0} definitions in the training-text half; evaluation half {counts.Values.Sum(c => c[0] + c[1]):N0} = {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test.");
 readme.AppendLine();
-readme.AppendLine("| label | train | test |");
-readme.AppendLine("|---|---:|---:|");
-foreach ((string label, int[] c) in counts)
-{
-    readme.AppendLine(inv, $"| {label} | {c[0]:N0} | {c[1]:N0} |");
-}
-readme.AppendLine();
+AppendCounts(readme, counts);
 // The WordNet licence asks for its notice on every copy: the package's copyright file goes beside the data.
 const string Notice = "/usr/share/doc/wordnet-base/copyright";
-if (File.Exists(Notice))
-{
-    File.Copy(Notice, Path.Combine(output, "LICENSE-WordNet.txt"), overwrite: true);
-}
-readme.AppendLine(inv, $"Licence: the WordNet 3.0 licence (permissive, with a notice to keep): {(File.Exists(Notice) ? "LICENSE-WordNet.txt, copied from " + Notice : "see " + Notice + " of the wordnet-base package")}.");
+readme.AppendLine(inv, $"Licence: the WordNet 3.0 licence (permissive, with a notice to keep): {(CopyNotice(Notice, output, "LICENSE-WordNet.txt") ? "LICENSE-WordNet.txt, copied from " + Notice : "see " + Notice + " of the wordnet-base package")}.");
 File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
 Console.WriteLine(string.Create(inv, $"wrote {output}: {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test rows in {counts.Count} supersenses; {trainingText:N0} definitions left to the training text"));
 return 0;
@@ -110,11 +100,7 @@ static int WriteCorpus(string output, string? austenRdx, string dataNoun)
         readme.Append(CultureInfo.InvariantCulture, $"| {file} | {count:N0} | {new FileInfo(path).Length:N0} | {note} |\n");
         Console.WriteLine(string.Create(CultureInfo.InvariantCulture, $"{file}: {count:N0} lines"));
     }
-    const string Notice = "/usr/share/doc/wordnet-base/copyright";
-    if (File.Exists(Notice))
-    {
-        File.Copy(Notice, Path.Combine(output, "LICENSE-WordNet"), overwrite: true);
-    }
+    CopyNotice("/usr/share/doc/wordnet-base/copyright", output, "LICENSE-WordNet");
     File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
     return 0;
 }
@@ -183,20 +169,35 @@ static int WriteFortunes(string output, string folder)
     readme.AppendLine();
     readme.AppendLine(inv, $"Counts: {counts.Values.Sum(c => c[0] + c[1]):N0} entries = {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test.");
     readme.AppendLine();
-    readme.AppendLine("| label | train | test |");
-    readme.AppendLine("|---|---:|---:|");
-    foreach ((string label, int[] c) in counts)
-    {
-        readme.AppendLine(inv, $"| {label} | {c[0]:N0} | {c[1]:N0} |");
-    }
-    readme.AppendLine();
+    AppendCounts(readme, counts);
     const string Notice = "/usr/share/doc/fortunes/copyright";
-    if (File.Exists(Notice))
-    {
-        File.Copy(Notice, Path.Combine(output, "LICENSE-fortunes.txt"), overwrite: true);
-    }
+    CopyNotice(Notice, output, "LICENSE-fortunes.txt");
     readme.AppendLine("Licence: the BSD licence of the fortune collection; its notice is in LICENSE-fortunes.txt (copied from " + Notice + ").");
     File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
     Console.WriteLine(string.Create(inv, $"wrote {output}: {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test rows in {counts.Count} topics"));
     return 0;
 }
+
+/// <summary>The per-label table of a task README: label, train rows, test rows.</summary>
+static void AppendCounts(StringBuilder readme, SortedDictionary<string, int[]> counts)
+{
+    readme.AppendLine("| label | train | test |");
+    readme.AppendLine("|---|---:|---:|");
+    foreach ((string label, int[] c) in counts)
+    {
+        readme.AppendLine(CultureInfo.InvariantCulture, $"| {label} | {c[0]:N0} | {c[1]:N0} |");
+    }
+    readme.AppendLine();
+}
+
+/// <summary>Copies a package's licence notice beside the data; false when the package is not installed.</summary>
+static bool CopyNotice(string notice, string output, string name)
+{
+    if (!File.Exists(notice))
+    {
+        return false;
+    }
+    File.Copy(notice, Path.Combine(output, name), overwrite: true);
+    return true;
+}
+
