@@ -9,4 +9,5 @@ root.Subcommands.Add(ManifestCommand.Create());
 root.Subcommands.Add(ProbeCommand.Create());
 root.Subcommands.Add(CrossEntropyCommand.Create());
 root.Subcommands.Add(ZeroShotCommand.Create());
+root.Subcommands.Add(StudyCommand.Create());
 return root.Parse(args).Invoke();

@@ -5,7 +5,7 @@ using Assay.Trainer;
 
 // assay-trainer <corpus-dir> <out-dir> [--steps N] [--batch B] [--width D] [--layers L] [--heads H] [--context T] [--lr X] [--seed S] [--threads N]
 // Trains a GPT-2-architecture model with the GPT-2 tokenizer on every *.txt of the corpus folder (one document per
-// line), writes checkpoints after 5 %, 25 % and 100 % of the steps (float16 safetensors, config.json, vocab.json,
+// line), writes checkpoints of the initialization and after 5 %, 25 % and 100 % of the steps (float16 safetensors, config.json, vocab.json,
 // merges.txt) and training-log.csv, and prints the validation cross-entropy against a unigram model's.
 if (args.Length < 2)
 {

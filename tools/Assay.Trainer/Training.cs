@@ -27,8 +27,11 @@ internal sealed record TrainingOptions
     /// <summary>Validation windows evaluated at each checkpoint (all of them when fewer).</summary>
     public int ValidationWindows { get; init; } = 400;
 
-    /// <summary>Fractions of the steps after which a checkpoint is written and validated.</summary>
-    public IReadOnlyList<double> KeepAt { get; init; } = [0.05, 0.25, 1.0];
+    /// <summary>
+    /// Fractions of the steps after which a checkpoint is written and validated; 0 is the initialization itself,
+    /// before the first step (the random-init baseline of the study).
+    /// </summary>
+    public IReadOnlyList<double> KeepAt { get; init; } = [0, 0.05, 0.25, 1.0];
 }
 
 /// <summary>One line of the training log.</summary>
@@ -46,10 +49,16 @@ internal static class Training
         var rng = new DeterministicRandom(o.Seed);
         int[] order = Shuffled(corpus.TrainWindows, ref rng);
         int next = 0;
-        var keepSteps = o.KeepAt.Select(f => Math.Max(1, (int)Math.Round(f * o.Steps))).ToHashSet();
+        var keepSteps = o.KeepAt.Select(f => f == 0 ? 0 : Math.Max(1, (int)Math.Round(f * o.Steps))).ToHashSet();
         var lines = new List<LogLine>();
         log.WriteLine("step,seconds,learning_rate,train_loss,validation_loss");
         var clock = System.Diagnostics.Stopwatch.StartNew();
+        if (keepSteps.Contains(0))
+        {
+            double initial = Keep(model, corpus, o, outFolder, 0);
+            lines.Add(new LogLine(0, 0, double.NaN, initial));
+            log.WriteLine(string.Create(CultureInfo.InvariantCulture, $"0,{clock.Elapsed.TotalSeconds:F1},0,,{initial:F5}"));
+        }
 
         for (int step = 1; step <= o.Steps; step++)
         {
@@ -84,12 +93,7 @@ internal static class Training
             double? validation = null;
             if (keepSteps.Contains(step))
             {
-                validation = Validate(model, corpus, o);
-                if (outFolder != null)
-                {
-                    string folder = Path.Combine(outFolder, string.Create(CultureInfo.InvariantCulture, $"step-{step:D6}"));
-                    SyntheticCheckpoint.Write(o.Spec, model.Export(), folder);
-                }
+                validation = Keep(model, corpus, o, outFolder, step);
             }
             var line = new LogLine(step, lr, trainLoss, validation);
             lines.Add(line);
@@ -100,6 +104,18 @@ internal static class Training
             }
         }
         return lines;
+    }
+
+    /// <summary>Validates the model and, given a folder, writes it as the checkpoint of this step.</summary>
+    private static double Keep(GptModel model, Corpus corpus, TrainingOptions o, string? outFolder, int step)
+    {
+        double validation = Validate(model, corpus, o);
+        if (outFolder != null)
+        {
+            string folder = Path.Combine(outFolder, string.Create(CultureInfo.InvariantCulture, $"step-{step:D6}"));
+            SyntheticCheckpoint.Write(o.Spec, model.Export(), folder);
+        }
+        return validation;
     }
 
     private static double LearningRate(TrainingOptions o, int step)

@@ -16,6 +16,7 @@ public sealed class BundledModelTests
     [InlineData("assay-demo")]
     [InlineData("assay-demo-25pct")]
     [InlineData("assay-demo-5pct")]
+    [InlineData("assay-demo-init")]
     public void Each_bundled_checkpoint_matches_its_pinned_manifest_entry(string name) =>
         Assert.Empty(WeightsManifest.Verify(ModelFolder(name), Path.Combine(WeightsManifestPinTests.RepositoryManifest(), name + ".json")));
 

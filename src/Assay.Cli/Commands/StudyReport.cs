@@ -1,0 +1,209 @@
+using System.Globalization;
+using System.Text;
+using Assay.Evaluation;
+using CsvHelper;
+using ScottPlot;
+
+namespace Assay.Cli.Commands;
+
+/// <summary>The study's tables (Markdown, CSV) and plots (PNG, drawn with ScottPlot).</summary>
+internal static class StudyReport
+{
+    public const string MarkdownFile = "results.md";
+    public const string CsvFile = "results.csv";
+
+    /// <summary>A font every Debian 12 machine with fonts-dejavu-core has, so the plots look the same everywhere.</summary>
+    private const string FontName = "DejaVu Sans";
+
+    private static readonly CultureInfo Inv = CultureInfo.InvariantCulture;
+
+    public static void Write(StudyResult r, string folder, string markdown)
+    {
+        File.WriteAllText(Path.Combine(folder, MarkdownFile), markdown);
+        WriteCsv(r, Path.Combine(folder, CsvFile));
+        foreach ((string prompt, _) in r.Spec.Prompts)
+        {
+            AccuracyPlot(r, prompt).SavePng(Path.Combine(folder, $"accuracy.{prompt}.png"), 1000, 520);
+            if (r.Curves.Any(c => c.Prompt == prompt))
+            {
+                LossPlot(r, prompt).SavePng(Path.Combine(folder, $"loss-vs-cross-entropy.{prompt}.png"), 1000, 560);
+            }
+        }
+    }
+
+    public static string Markdown(StudyResult r)
+    {
+        var s = new StringBuilder();
+        StudyCell any = r.Cells[0];
+        int train = r.Cells.Where(c => c.TrainRows > 0).Select(c => c.TrainRows).DefaultIfEmpty(0).Max();
+        s.Append(Inv, $"Study {Path.GetFileName(r.Spec.Path)}: {r.Classes.Count} classes (chance {1.0 / r.Classes.Count:P1}); ")
+            .Append(Inv, $"probes fitted on {train:N0} training texts (every {r.Spec.TrainEvery}. of {Path.GetFileName(r.Spec.Train)}), ")
+            .Append(Inv, $"scored on {any.Score.Rows:N0} test texts (every {r.Spec.TestEvery}. of {Path.GetFileName(r.Spec.Test)}); ")
+            .Append(Inv, $"C from {{{string.Join(", ", r.Spec.Probe.Strengths.Select(c => c.ToString("G3", Inv)))}}} by {r.Spec.Probe.Folds}-fold cross-validation. ")
+            .Append("Cross-entropy: the model's own, on the test texts without a prompt. ")
+            .Append(Inv, $"Without features (the training labels' frequencies for every text): accuracy {r.Prior.Accuracy * 100:F1} % (the majority class), log loss {r.Prior.LogLoss:F3}.\n\n");
+
+        s.Append("Test accuracy (95 % bootstrap interval):\n\n");
+        Table(s, r, c => string.Create(Inv, $"{c.Score.Accuracy * 100:F1} ({c.Score.AccuracyLow * 100:F1}–{c.Score.AccuracyHigh * 100:F1})"));
+        s.Append("\nTest log loss (nats):\n\n");
+        Table(s, r, c => c.Score.LogLoss.ToString("F3", Inv));
+        if (r.Curves.Count > 0)
+        {
+            s.Append("\nTest log loss against cross-entropy x, fitted as a + b·√(x − x₀) over the models")
+                .Append(Inv, $" ({r.Models.Count} points, 3 parameters):\n\n")
+                .Append("| prompt | feature | a | b | x₀ | R² |\n|---|---|---:|---:|---:|---:|\n");
+            foreach (StudyCurve c in r.Curves)
+            {
+                s.Append(Inv, $"| {c.Prompt} | {c.Feature} | {c.Fit.A:F3} | {c.Fit.B:F3} | {c.Fit.Shift:F3}{(c.Fit.ShiftAtBound ? "*" : "")} | {c.Fit.RSquared:F3} |\n");
+            }
+            if (r.Curves.Any(c => c.Fit.ShiftAtBound))
+            {
+                s.Append("\n\\* x₀ at its bound, the smallest cross-entropy: the points want a curve steeper there than a square root allows.\n");
+            }
+        }
+        return s.ToString();
+    }
+
+    private static void Table(StringBuilder s, StudyResult r, Func<StudyCell, string> value)
+    {
+        s.Append("| model | cross-entropy | prompt | ").Append(string.Join(" | ", r.Spec.Features)).Append(" |\n");
+        s.Append("|---|---:|---|").Append(string.Concat(r.Spec.Features.Select(_ => "---:|"))).Append('\n');
+        foreach (StudyModel m in r.Models)
+        {
+            foreach ((string prompt, _) in r.Spec.Prompts)
+            {
+                s.Append(Inv, $"| {m.Name} | {m.CrossEntropy.NatsPerToken:F3} | {prompt} | ");
+                s.Append(string.Join(" | ", r.Spec.Features.Select(f => value(Cell(r, m.Name, prompt, f))))).Append(" |\n");
+            }
+        }
+    }
+
+    private static StudyCell Cell(StudyResult r, string model, string prompt, string feature) =>
+        r.Cells.Single(c => c.Model == model && c.Prompt == prompt && c.Feature == feature);
+
+    private static void WriteCsv(StudyResult r, string path)
+    {
+        using var file = File.Create(path);
+        using CsvWriter w = CsvWriter.Create(file, new CsvWriterOptions { NewLine = "\n" });
+        foreach (string h in new[] { "model", "cross_entropy_nats_per_token", "cross_entropy_bits_per_byte", "prompt", "template", "feature", "width", "train_rows", "c", "test_rows", "accuracy", "accuracy_low", "accuracy_high", "log_loss", "macro_f1" })
+        {
+            w.WriteField(h);
+        }
+        w.EndRecord();
+        foreach (StudyCell c in r.Cells)
+        {
+            StudyModel m = r.Models.Single(x => x.Name == c.Model);
+            w.WriteField(c.Model);
+            w.WriteField(m.CrossEntropy.NatsPerToken.ToString("R", Inv));
+            w.WriteField(m.CrossEntropy.BitsPerByte.ToString("R", Inv));
+            w.WriteField(c.Prompt);
+            w.WriteField(r.Spec.Prompts.Single(p => p.Name == c.Prompt).Template);
+            w.WriteField(c.Feature);
+            w.WriteField(c.Width.ToString(Inv));
+            w.WriteField(c.TrainRows.ToString(Inv));
+            w.WriteField(c.Strength?.ToString("R", Inv) ?? "");
+            w.WriteField(c.Score.Rows.ToString(Inv));
+            w.WriteField(c.Score.Accuracy.ToString("R", Inv));
+            w.WriteField(c.Score.AccuracyLow.ToString("R", Inv));
+            w.WriteField(c.Score.AccuracyHigh.ToString("R", Inv));
+            w.WriteField(c.Score.LogLoss.ToString("R", Inv));
+            w.WriteField(c.Score.MacroF1.ToString("R", Inv));
+            w.EndRecord();
+        }
+    }
+
+    /// <summary>Bars of test accuracy grouped by feature kind, one colour per model, with the bootstrap interval, chance and the majority class.</summary>
+    private static Plot AccuracyPlot(StudyResult r, string prompt)
+    {
+        var plot = new Plot();
+        plot.Font.Set(FontName);
+        var palette = new ScottPlot.Palettes.Category10();
+        int models = r.Models.Count;
+        var ticks = new List<Tick>();
+        for (int f = 0; f < r.Spec.Features.Count; f++)
+        {
+            double groupStart = f * (models + 1);
+            ticks.Add(new Tick(groupStart + ((models - 1) / 2.0), r.Spec.Features[f]));
+            for (int m = 0; m < models; m++)
+            {
+                StudyCell c = Cell(r, r.Models[m].Name, prompt, r.Spec.Features[f]);
+                var bar = new Bar
+                {
+                    Position = groupStart + m,
+                    Value = c.Score.Accuracy * 100,
+                    FillColor = palette.GetColor(m),
+                };
+                plot.Add.Bar(bar);
+                var interval = new ScottPlot.Plottables.ErrorBar([bar.Position], [bar.Value], [0.0], [0.0],
+                    [(c.Score.AccuracyHigh - c.Score.Accuracy) * 100], [(c.Score.Accuracy - c.Score.AccuracyLow) * 100])
+                {
+                    Color = Colors.Black,
+                };
+                plot.Add.Plottable(interval);
+            }
+        }
+        for (int m = 0; m < models; m++)
+        {
+            plot.Legend.ManualItems.Add(new LegendItem
+            {
+                LabelText = string.Create(Inv, $"{r.Models[m].Name} (cross-entropy {r.Models[m].CrossEntropy.NatsPerToken:F2})"),
+                FillColor = palette.GetColor(m),
+            });
+        }
+        var chance = plot.Add.HorizontalLine(100.0 / r.Classes.Count);
+        chance.LinePattern = LinePattern.Dashed;
+        chance.Color = Colors.Gray;
+        chance.LegendText = string.Create(Inv, $"chance ({100.0 / r.Classes.Count:F1} %)");
+        var majority = plot.Add.HorizontalLine(r.Prior.Accuracy * 100);
+        majority.LinePattern = LinePattern.Dotted;
+        majority.Color = Colors.Gray;
+        majority.LegendText = string.Create(Inv, $"majority class ({r.Prior.Accuracy * 100:F1} %)");
+        plot.Axes.Bottom.TickGenerator = new ScottPlot.TickGenerators.NumericManual([.. ticks]);
+        plot.Axes.Margins(bottom: 0);
+        plot.Title($"Test accuracy by feature kind — prompt \"{r.Spec.Prompts.Single(p => p.Name == prompt).Template}\"");
+        plot.YLabel("test accuracy (%)");
+        plot.Axes.SetLimitsY(0, 1.3 * r.Cells.Where(c => c.Prompt == prompt).Max(c => c.Score.AccuracyHigh) * 100);
+        plot.ShowLegend(Alignment.UpperRight);
+        return plot;
+    }
+
+    /// <summary>Test log loss against the models' cross-entropy, one series per feature kind, with the fitted curves.</summary>
+    private static Plot LossPlot(StudyResult r, string prompt)
+    {
+        var plot = new Plot();
+        plot.Font.Set(FontName);
+        var palette = new ScottPlot.Palettes.Category10();
+        int i = 0;
+        foreach (StudyCurve c in r.Curves.Where(c => c.Prompt == prompt))
+        {
+            Color color = palette.GetColor(i++);
+            var points = plot.Add.ScatterPoints(c.Points.Select(p => p.CrossEntropy).ToArray(), c.Points.Select(p => p.LogLoss).ToArray());
+            points.Color = color;
+            points.MarkerSize = 9;
+            points.LegendText = string.Create(Inv, $"{c.Feature}: {c.Fit.A:F2} + {c.Fit.B:F2}·√(x − {c.Fit.Shift:F2}), R² {c.Fit.RSquared:F3}");
+            double low = c.Points.Min(p => p.CrossEntropy), high = c.Points.Max(p => p.CrossEntropy);
+            double[] xs = [.. Enumerable.Range(0, 200).Select(k => low + ((high - low) * k / 199.0))];
+            var curve = plot.Add.ScatterLine(xs, [.. xs.Select(c.Fit.Predict)]);
+            curve.Color = color;
+            curve.LineWidth = 1.5f;
+        }
+        foreach (StudyModel m in r.Models)
+        {
+            var label = plot.Add.VerticalLine(m.CrossEntropy.NatsPerToken);
+            label.Color = Colors.Gray.WithAlpha(0.5);
+            label.LinePattern = LinePattern.Dotted;
+            label.Text = m.Name;
+            label.LabelOppositeAxis = true;
+        }
+        var prior = plot.Add.HorizontalLine(r.Prior.LogLoss);
+        prior.LinePattern = LinePattern.Dashed;
+        prior.Color = Colors.Gray;
+        prior.LegendText = string.Create(Inv, $"no features: the label prior ({r.Prior.LogLoss:F3})");
+        plot.Title($"Test log loss against the model's cross-entropy — prompt \"{r.Spec.Prompts.Single(p => p.Name == prompt).Template}\"");
+        plot.XLabel("the model's cross-entropy on the test texts (nats/token)");
+        plot.YLabel("probe test log loss (nats)");
+        plot.ShowLegend(Alignment.LowerRight);
+        plot.Axes.SetLimitsY(0.95 * r.Curves.Where(c => c.Prompt == prompt).Min(c => c.Points.Min(p => p.LogLoss)), 1.05 * Math.Max(r.Prior.LogLoss, r.Curves.Where(c => c.Prompt == prompt).Max(c => c.Points.Max(p => p.LogLoss))));
+        return plot;
+    }
+}

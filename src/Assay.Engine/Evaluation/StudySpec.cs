@@ -1,0 +1,208 @@
+using System.Globalization;
+using System.Text.Json;
+using System.Text.Json.Nodes;
+using System.Text.RegularExpressions;
+
+namespace Assay.Evaluation;
+
+/// <summary>A study file is malformed or names something missing; the message names the file and the field.</summary>
+public sealed class StudyException : InvalidInputException
+{
+    /// <summary>Creates the exception.</summary>
+    public StudyException(string path, string problem, Exception? inner = null)
+        : base(path, $"{path}: {problem}", inner)
+    {
+    }
+}
+
+/// <summary>
+/// One grid of a study: every model × prompt × feature kind, probed on a labelled task. The file is JSON:
+/// <code>
+/// {
+///   "train": "tasks/x/train.jsonl", "test": "tasks/x/test.jsonl",   // labelled texts (id, text, label)
+///   "train_every": 8, "test_every": 4,                             // every k-th record of each label (1 = all)
+///   "models": { "init": "models/a-init", "final": "models/a" },   // name → checkpoint folder, in order
+///   "prompts": { "kind-of": "{text} It is a kind of" },            // name → template
+///   "features": ["hidden", "cmean", "words", "zero-shot"],
+///   "verbalizer": "labels.txt",                                    // for words and zero-shot
+///   "folds": 3, "strengths": [0.01, 0.1, 1]                        // the probe's cross-validation
+/// }
+/// </code>
+/// Paths are relative to the study file. Feature kinds: <c>hidden</c> (the last layer's state at the last token),
+/// <c>hidden:N</c> (layer N), <c>cmean</c> (Φp), <c>words</c> (a probe on the verbalizer words' next-word
+/// probabilities only) and <c>zero-shot</c> (the verbalizer's label scores, no training).
+/// </summary>
+public sealed partial record StudySpec
+{
+    /// <summary>The study file.</summary>
+    public required string Path { get; init; }
+
+    /// <summary>Labelled training texts (absolute path).</summary>
+    public required string Train { get; init; }
+
+    /// <summary>Labelled test texts (absolute path).</summary>
+    public required string Test { get; init; }
+
+    /// <summary>Keep every k-th training record of each label (and at least as many as there are folds).</summary>
+    public int TrainEvery { get; init; } = 1;
+
+    /// <summary>Keep every k-th test record of each label (and at least one).</summary>
+    public int TestEvery { get; init; } = 1;
+
+    /// <summary>Model name and checkpoint folder (absolute), in the file's order.</summary>
+    public required IReadOnlyList<(string Name, string Folder)> Models { get; init; }
+
+    /// <summary>Prompt name and template, in the file's order.</summary>
+    public required IReadOnlyList<(string Name, string Template)> Prompts { get; init; }
+
+    /// <summary>Feature kinds, in the file's order.</summary>
+    public required IReadOnlyList<string> Features { get; init; }
+
+    /// <summary>Verbalizer file (absolute), or null when no feature needs one.</summary>
+    public string? Verbalizer { get; init; }
+
+    /// <summary>How the probes are fitted.</summary>
+    public ProbeOptions Probe { get; init; } = new();
+
+    [GeneratedRegex("^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")]
+    private static partial Regex NamePattern();
+
+    [GeneratedRegex("^(hidden(:-?[0-9]+)?|cmean|words|zero-shot)$")]
+    private static partial Regex FeaturePattern();
+
+    /// <summary>Reads and checks a study file.</summary>
+    /// <exception cref="StudyException">Not JSON, a field missing or of the wrong kind, an unknown feature, a bad name, or a missing file or folder.</exception>
+    public static StudySpec Load(string path)
+    {
+        ArgumentNullException.ThrowIfNull(path);
+        path = System.IO.Path.GetFullPath(path);
+        if (!File.Exists(path))
+        {
+            throw new StudyException(path, "no such study file");
+        }
+        JsonObject o;
+        try
+        {
+            o = JsonNode.Parse(File.ReadAllBytes(path), documentOptions: new JsonDocumentOptions { CommentHandling = JsonCommentHandling.Skip })?.AsObject()
+                ?? throw new StudyException(path, "expected a JSON object");
+        }
+        catch (Exception e) when (e is JsonException or InvalidOperationException)
+        {
+            throw new StudyException(path, $"not a JSON object ({e.Message})", e);
+        }
+        string folder = System.IO.Path.GetDirectoryName(path)!;
+        string known = "train, test, train_every, test_every, models, prompts, features, verbalizer, folds, strengths";
+        string? unknown = o.Select(p => p.Key).FirstOrDefault(k => !known.Split(", ").Contains(k));
+        if (unknown != null)
+        {
+            throw new StudyException(path, $"unknown field \"{unknown}\"; the fields are {known}");
+        }
+
+        string ExistingFile(string field)
+        {
+            string value = Text(path, o, field);
+            string full = System.IO.Path.GetFullPath(System.IO.Path.Combine(folder, value));
+            return System.IO.File.Exists(full) ? full : throw new StudyException(path, $"{field}: no such file {full}");
+        }
+
+        var models = Map(path, o, "models").Select(m =>
+        {
+            string full = System.IO.Path.GetFullPath(System.IO.Path.Combine(folder, m.Value));
+            return Directory.Exists(full) ? (m.Name, full) : throw new StudyException(path, $"models.{m.Name}: no such folder {full}");
+        }).ToList();
+        var prompts = Map(path, o, "prompts");
+        string[] features = o["features"] is JsonArray fa && fa.Count > 0 && fa.All(f => f is JsonValue v && v.TryGetValue(out string? _))
+            ? [.. fa.Select(f => f!.GetValue<string>())]
+            : throw new StudyException(path, "features: expected a non-empty list of feature kinds");
+        string? bad = features.FirstOrDefault(f => !FeaturePattern().IsMatch(f));
+        if (bad != null)
+        {
+            throw new StudyException(path, $"features: unknown kind \"{bad}\"; the kinds are hidden, hidden:N, cmean, words, zero-shot");
+        }
+        if (features.Distinct(StringComparer.Ordinal).Count() != features.Length)
+        {
+            throw new StudyException(path, "features: a kind is listed twice");
+        }
+        bool needsWords = features.Any(f => f is "words" or "zero-shot");
+        string? verbalizer = o.ContainsKey("verbalizer") ? ExistingFile("verbalizer") : null;
+        if (needsWords && verbalizer == null)
+        {
+            throw new StudyException(path, "verbalizer: words and zero-shot need a verbalizer file");
+        }
+
+        var probe = new ProbeOptions();
+        if (o.ContainsKey("folds"))
+        {
+            probe = probe with { Folds = Count(path, o, "folds", 2) };
+        }
+        if (o.ContainsKey("strengths"))
+        {
+            probe = probe with
+            {
+                Strengths = o["strengths"] is JsonArray sa && sa.Count > 0
+                    && sa.All(s => s is JsonValue v && v.TryGetValue(out double c) && c > 0 && double.IsFinite(c))
+                    ? [.. sa.Select(s => s!.GetValue<double>())]
+                    : throw new StudyException(path, "strengths: expected a non-empty list of positive numbers"),
+            };
+        }
+
+        return new StudySpec
+        {
+            Path = path,
+            Train = ExistingFile("train"),
+            Test = ExistingFile("test"),
+            TrainEvery = o.ContainsKey("train_every") ? Count(path, o, "train_every", 1) : 1,
+            TestEvery = o.ContainsKey("test_every") ? Count(path, o, "test_every", 1) : 1,
+            Models = models,
+            Prompts = prompts,
+            Features = features,
+            Verbalizer = verbalizer,
+            Probe = probe,
+        };
+    }
+
+    /// <summary>The study as resolved (absolute paths), as stored beside the results to tell a rerun from a new study.</summary>
+    public JsonObject ToJson() => new()
+    {
+        ["train"] = Train,
+        ["test"] = Test,
+        ["train_every"] = TrainEvery,
+        ["test_every"] = TestEvery,
+        ["models"] = new JsonObject(Models.Select(m => KeyValuePair.Create(m.Name, (JsonNode?)JsonValue.Create(m.Folder)))),
+        ["prompts"] = new JsonObject(Prompts.Select(p => KeyValuePair.Create(p.Name, (JsonNode?)JsonValue.Create(p.Template)))),
+        ["features"] = new JsonArray([.. Features.Select(f => JsonValue.Create(f))]),
+        ["verbalizer"] = Verbalizer,
+        ["folds"] = Probe.Folds,
+        ["strengths"] = new JsonArray([.. Probe.Strengths.Select(s => JsonValue.Create(s))]),
+    };
+
+    private static string Text(string path, JsonObject o, string field) =>
+        o[field] is JsonValue v && v.TryGetValue(out string? s) && s.Length > 0
+            ? s
+            : throw new StudyException(path, $"{field}: expected a non-empty string");
+
+    private static int Count(string path, JsonObject o, string field, int least) =>
+        o[field] is JsonValue v && v.TryGetValue(out int n) && n >= least
+            ? n
+            : throw new StudyException(path, string.Create(CultureInfo.InvariantCulture, $"{field}: expected a whole number ≥ {least}"));
+
+    private static List<(string Name, string Value)> Map(string path, JsonObject o, string field)
+    {
+        if (o[field] is not JsonObject map || map.Count == 0)
+        {
+            throw new StudyException(path, $"{field}: expected an object of name → value, with at least one entry");
+        }
+        var result = new List<(string, string)>();
+        foreach ((string name, JsonNode? value) in map)
+        {
+            if (!NamePattern().IsMatch(name))
+            {
+                throw new StudyException(path, $"{field}: name \"{name}\" must be 1–64 letters, digits, '.', '_' or '-', starting with a letter or digit");
+            }
+            result.Add(value is JsonValue v && v.TryGetValue(out string? s) && s.Length > 0
+                ? (name, s)
+                : throw new StudyException(path, $"{field}.{name}: expected a non-empty string"));
+        }
+        return result;
+    }
+}

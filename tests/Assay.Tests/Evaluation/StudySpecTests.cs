@@ -1,0 +1,66 @@
+using Assay.Evaluation;
+using Assay.Tests.Support;
+
+namespace Assay.Tests.Evaluation;
+
+/// <summary>Study files: a bad field is named with the file, before anything runs.</summary>
+public sealed class StudySpecTests
+{
+    private const string Valid = """
+        {
+          "train": "train.jsonl", "test": "test.jsonl",
+          "models": { "m": "model" },
+          "prompts": { "p": "{text}" },
+          "features": ["hidden", "cmean"]
+        }
+        """;
+
+    private static TempFolder Folder()
+    {
+        var t = new TempFolder();
+        File.WriteAllText(t.File("train.jsonl"), "");
+        File.WriteAllText(t.File("test.jsonl"), "");
+        Directory.CreateDirectory(t.File("model"));
+        return t;
+    }
+
+    [Fact]
+    public void A_valid_file_resolves_paths_beside_it_and_keeps_the_order()
+    {
+        using TempFolder t = Folder();
+        File.WriteAllText(t.File("s.json"), Valid.Replace("\"models\": { \"m\": \"model\" }", "\"models\": { \"b\": \"model\", \"a\": \"model\" }", StringComparison.Ordinal));
+        StudySpec s = StudySpec.Load(t.File("s.json"));
+        Assert.Equal(t.File("train.jsonl"), s.Train);
+        Assert.Equal(["b", "a"], s.Models.Select(m => m.Name));
+        Assert.Equal(1, s.TrainEvery);
+        Assert.Equal(new ProbeOptions().Folds, s.Probe.Folds);
+    }
+
+    [Theory]
+    [InlineData("\"features\": [\"hidden\", \"cmean\"]", "\"features\": [\"hidden\", \"logits\"]", "features: unknown kind \"logits\"")]
+    [InlineData("\"features\": [\"hidden\", \"cmean\"]", "\"features\": [\"words\"]", "verbalizer: words and zero-shot need a verbalizer file")]
+    [InlineData("\"features\": [\"hidden\", \"cmean\"]", "\"features\": [\"cmean\", \"cmean\"]", "listed twice")]
+    [InlineData("\"m\": \"model\"", "\"m\": \"missing\"", "models.m: no such folder")]
+    [InlineData("\"m\": \"model\"", "\"a b\": \"model\"", "models: name \"a b\"")]
+    [InlineData("\"train\": \"train.jsonl\"", "\"train\": \"nope.jsonl\"", "train: no such file")]
+    [InlineData("\"train\": \"train.jsonl\",", "\"train\": \"train.jsonl\", \"train_evry\": 2,", "unknown field \"train_evry\"")]
+    [InlineData("\"train\": \"train.jsonl\",", "\"train\": \"train.jsonl\", \"train_every\": 0,", "train_every: expected a whole number ≥ 1")]
+    [InlineData("\"train\": \"train.jsonl\",", "\"train\": \"train.jsonl\", \"strengths\": [0.1, -1],", "strengths: expected a non-empty list of positive numbers")]
+    [InlineData("\"prompts\": { \"p\": \"{text}\" },", "\"prompts\": {},", "prompts: expected an object")]
+    public void A_bad_field_is_named(string from, string to, string expected)
+    {
+        using TempFolder t = Folder();
+        File.WriteAllText(t.File("s.json"), Valid.Replace(from, to, StringComparison.Ordinal));
+        var e = Assert.Throws<StudyException>(() => StudySpec.Load(t.File("s.json")));
+        Assert.StartsWith(t.File("s.json") + ": ", e.Message, StringComparison.Ordinal);
+        Assert.Contains(expected, e.Message, StringComparison.Ordinal);
+    }
+
+    [Fact]
+    public void Not_json_is_named()
+    {
+        using TempFolder t = Folder();
+        File.WriteAllText(t.File("s.json"), "{ \"train\": ");
+        Assert.Contains("not a JSON object", Assert.Throws<StudyException>(() => StudySpec.Load(t.File("s.json"))).Message, StringComparison.Ordinal);
+    }
+}
