@@ -28,14 +28,14 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
         for (int l = 0; l < layers; l++)
         {
             BlockWeights b = weights.Blocks[l];
-            LayerNorm(x, h, total, b.Norm1Gain, b.Norm1Bias, config.NormEpsilon);
+            Normalize(x, h, total, b.Norm1Gain, b.Norm1Bias);
             Gemm(h, total, d, b.Attention, qkv, 3 * d, accumulate: false, variant, parallel);
             Attention(qkv, attn, starts, lengths);
             Gemm(attn, total, d, b.AttentionOut, x, d, accumulate: true, variant, parallel);
 
-            LayerNorm(x, h, total, b.Norm2Gain, b.Norm2Bias, config.NormEpsilon);
+            Normalize(x, h, total, b.Norm2Gain, b.Norm2Bias);
             Gemm(h, total, d, b.MlpIn, mlp, m, accumulate: false, variant, parallel);
-            Activate(mlp, config.Activation);
+            Activation(mlp, total, m);
             Gemm(mlp, total, m, b.MlpOut, x, d, accumulate: true, variant, parallel);
 
             if (l + 1 < layers)
@@ -44,11 +44,40 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
             }
         }
 
-        LayerNorm(x, h, total, weights.FinalNormGain, weights.FinalNormBias, config.NormEpsilon);
+        Normalize(x, h, total, weights.FinalNormGain, weights.FinalNormBias);
         Keep(layers, h, wanted, hidden);
 
         float[] logits = Head(h, starts, lengths, total, options.Logits);
         return new ForwardResult(d, config.VocabularySize, starts, lengths, hidden, logits, options.Logits);
+    }
+
+    /// <summary>Rows a worker takes at a time in the row-wise steps (LayerNorm, activation).</summary>
+    private const int RowBlock = 32;
+
+    /// <summary>LayerNorm of every row, rows spread over the workers (each row's result is its own: same bits).</summary>
+    private void Normalize(float[] x, float[] y, int rows, float[] gain, float[] bias)
+    {
+        int d = config.Width;
+        float epsilon = config.NormEpsilon;
+        ForRowBlocks(rows, (first, count) => LayerNorm(x.AsSpan(first * d, count * d), y.AsSpan(first * d, count * d), count, gain, bias, epsilon));
+    }
+
+    /// <summary>The MLP activation, elementwise, rows spread over the workers.</summary>
+    private void Activation(float[] values, int rows, int width)
+    {
+        Config.Activation activation = config.Activation;
+        ForRowBlocks(rows, (first, count) => Activate(values.AsSpan(first * width, count * width), activation));
+    }
+
+    private void ForRowBlocks(int rows, Action<int, int> body)
+    {
+        int blocks = (rows + RowBlock - 1) / RowBlock;
+        if (blocks <= 1)
+        {
+            body(0, rows);
+            return;
+        }
+        Parallel.For(0, blocks, parallel, i => body(i * RowBlock, Math.Min(RowBlock, rows - (i * RowBlock))));
     }
 
     private void Embed(IReadOnlyList<int[]> sequences, int[] starts, float[] x)
@@ -72,13 +101,14 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
         int d = config.Width, heads = config.Heads, hd = config.HeadWidth;
         int work = lengths.Length * heads;
         int longest = lengths.Max();
-        Parallel.For(0, work, parallel, () => new float[longest], (i, _, scores) =>
+        KernelVariant kernels = variant;
+        Parallel.For(0, work, parallel, () => new float[longest * (hd + 1)], (i, _, scratch) =>
         {
             int s = i / heads, head = i % heads;
             int start = starts[s], length = lengths[s];
             CausalAttentionHead(qkv.AsSpan(start * 3 * d, length * 3 * d), output.AsSpan(start * d, length * d),
-                length, d, head, hd, scores);
-            return scores;
+                length, d, head, hd, scratch.AsSpan(0, longest), scratch.AsSpan(longest), kernels);
+            return scratch;
         }, static _ => { });
     }
 

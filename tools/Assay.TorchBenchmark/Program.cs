@@ -1,0 +1,108 @@
+using System.Globalization;
+using Assay.Benchmarks;
+using Assay.Fixtures;
+using Assay.Model;
+using Assay.TorchBenchmark;
+using TorchSharp;
+using static TorchSharp.torch;
+
+// assay-torch-bench [--batch B] [--length T] [--repeats R] [--threads N]
+// One run, one process: the engine's forward pass and libtorch's (float32 and bfloat16) on the same random
+// GPT-2-small-shaped weights (Assay.Fixtures' deterministic checkpoint, float32) and the same token batches, head at
+// the last position only; the FMA peak of this CPU measured in the same run; medians of R timed repeats after one
+// warm-up each. Prints a Markdown table.
+int batch = 8, length = 128, repeats = 5, threads = Environment.ProcessorCount;
+for (int i = 0; i + 1 < args.Length; i += 2)
+{
+    int v = int.Parse(args[i + 1], CultureInfo.InvariantCulture);
+    switch (args[i])
+    {
+        case "--batch": batch = v; break;
+        case "--length": length = v; break;
+        case "--repeats": repeats = v; break;
+        case "--threads": threads = v; break;
+        default:
+            Console.Error.WriteLine($"assay-torch-bench: unknown option {args[i]}");
+            return 2;
+    }
+}
+if (args.Length % 2 != 0)
+{
+    Console.Error.WriteLine("usage: assay-torch-bench [--batch B] [--length T] [--repeats R] [--threads N]");
+    return 2;
+}
+torch.set_num_threads(threads);
+CultureInfo inv = CultureInfo.InvariantCulture;
+CheckpointSpec spec = CheckpointSpec.Gpt2Small with { DType = "F32" };
+string folder = Path.Combine(Path.GetTempPath(), "assay-torch-bench-" + Environment.ProcessId.ToString(inv));
+try
+{
+    Console.Error.WriteLine($"writing the GPT-2-small-shaped checkpoint to {folder} …");
+    SyntheticCheckpoint.Write(spec, folder);
+    var rng = new DeterministicRandom(7);
+    int[][] sequences = [.. Enumerable.Range(0, batch).Select(_ => Enumerable.Range(0, length).Select(_ => (int)(rng.NextUInt64() % (ulong)spec.Vocabulary)).ToArray())];
+    long[] flat = [.. sequences.SelectMany(s => s).Select(t => (long)t)];
+    long tokens = (long)batch * length;
+
+    // The FMA peak first: libtorch's OpenMP workers keep spinning after their work and would take cores from it.
+    double peak = FmaPeak.Measure(threads);
+    LanguageModel engine = LanguageModel.Open(folder);
+    var options = new ForwardOptions { Logits = LogitPositions.Last, MaxThreads = threads };
+    float[] engineLogits = [];
+    double engineSeconds = FmaPeak.Median(repeats, () =>
+    {
+        ForwardResult r = engine.Forward(sequences, options);
+        engineLogits = new float[batch * spec.Vocabulary];
+        for (int s = 0; s < batch; s++)
+        {
+            r.Logits(s, length - 1).CopyTo(engineLogits.AsSpan(s * spec.Vocabulary, spec.Vocabulary));
+        }
+    });
+
+    double torchGemm = TorchMatmul(1024, 768, 3072, repeats);
+    double torch32, torch16, maxDiff;
+    using (var t32 = new TorchGpt2(spec, SyntheticCheckpoint.Parameters(spec), ScalarType.Float32))
+    {
+        float[] torchLogits = [];
+        torch32 = FmaPeak.Median(repeats, () => torchLogits = t32.Forward(flat, batch, length));
+        maxDiff = engineLogits.Zip(torchLogits, (a, b) => Math.Abs(a - b)).Max();
+    }
+    using (var t16 = new TorchGpt2(spec, SyntheticCheckpoint.Parameters(spec), ScalarType.BFloat16))
+    {
+        torch16 = FmaPeak.Median(repeats, () => t16.Forward(flat, batch, length));
+    }
+
+    // Multiply-adds of the pass: per token and layer 12·d² in the four projections plus the causal attention's
+    // two products (on average (T+1)/2 keys), and the head at B positions.
+    double d = spec.Width;
+    double flops = (2.0 * tokens * spec.Layers * ((12 * d * d) + (d * (length + 1)))) + (2.0 * batch * d * spec.Vocabulary);
+
+    Console.WriteLine(string.Create(inv, $"GPT-2-small shape (12 layers, width 768, vocabulary 50,257), {batch} × {length} tokens, head at the last position; {threads} threads; medians of {repeats}."));
+    Console.WriteLine();
+    Console.WriteLine("| | seconds | tokens/s | GFLOP/s | of the FMA peak | engine speed-up over it |");
+    Console.WriteLine("|---|---:|---:|---:|---:|---:|");
+    void Row(string name, double seconds) => Console.WriteLine(string.Create(inv,
+        $"| {name} | {seconds:F3} | {tokens / seconds:F0} | {flops / seconds / 1e9:F1} | {flops / seconds / 1e9 / peak:P0} | {seconds / engineSeconds:F2} |"));
+    Row("engine, float32", engineSeconds);
+    Row("libtorch 2.10, float32", torch32);
+    Row("libtorch 2.10, bfloat16", torch16);
+    Console.WriteLine();
+    Console.WriteLine(string.Create(inv, $"FMA peak (register-only Vector512 loop, {threads} threads): {peak:F1} GFLOP/s. libtorch float32 matmul 1024 × 768 · 768 × 3072: {torchGemm:F1} GFLOP/s."));
+    Console.WriteLine(string.Create(inv, $"Engine vs libtorch float32 last-position logits: max abs difference {maxDiff:G3}."));
+    return 0;
+}
+finally
+{
+    Directory.Delete(folder, recursive: true);
+}
+
+static double TorchMatmul(int m, int k, int n, int repeats)
+{
+    using var noGrad = no_grad();
+    using Tensor a = randn(m, k), b = randn(k, n);
+    double seconds = FmaPeak.Median(repeats, () =>
+    {
+        using Tensor c = a.matmul(b);
+    });
+    return 2.0 * m * k * n / seconds / 1e9;
+}
