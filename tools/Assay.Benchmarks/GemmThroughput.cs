@@ -15,11 +15,12 @@ internal static class GemmThroughput
         CultureInfo inv = CultureInfo.InvariantCulture;
         (int M, int K, int N, string What)[] shapes =
         [
-            (256, 768, 2304, "qkv, 256 tokens"),
             (1024, 768, 2304, "qkv, 1,024 tokens"),
             (1024, 768, 768, "attention out"),
             (1024, 768, 3072, "MLP in"),
             (1024, 3072, 768, "MLP out"),
+            (256, 768, 2304, "qkv, 256 tokens"),
+            (256, 768, 768, "attention out, 256 tokens"),
         ];
         double peak = FmaPeak.Measure(threads);
         var parallel = new ParallelOptions { MaxDegreeOfParallelism = threads };

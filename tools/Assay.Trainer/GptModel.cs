@@ -34,29 +34,7 @@ internal sealed class GptModel
     public IEnumerable<Parameter> Parameters => _p.Values;
 
     /// <summary>Logits [B, T, V] of token windows [B, T].</summary>
-    public Tensor Forward(Tensor tokens)
-    {
-        long b = tokens.shape[0], t = tokens.shape[1], d = _spec.Width, h = _spec.Heads, hd = d / h;
-        Tensor wte = _p["wte.weight"];
-        Tensor x = wte.index_select(0, tokens.reshape(-1)).reshape(b, t, d) + _p["wpe.weight"].narrow(0, 0, t);
-        for (int l = 0; l < _spec.Layers; l++)
-        {
-            string k = $"h.{l}.";
-            Tensor n1 = nn.functional.layer_norm(x, [d], _p[k + "ln_1.weight"], _p[k + "ln_1.bias"], 1e-5);
-            Tensor qkv = n1.matmul(_p[k + "attn.c_attn.weight"]) + _p[k + "attn.c_attn.bias"];
-            Tensor[] parts = qkv.split(d, -1);
-            Tensor q = parts[0].reshape(b, t, h, hd).transpose(1, 2);
-            Tensor kk = parts[1].reshape(b, t, h, hd).transpose(1, 2);
-            Tensor v = parts[2].reshape(b, t, h, hd).transpose(1, 2);
-            Tensor a = nn.functional.scaled_dot_product_attention(q, kk, v, null, 0.0, true).transpose(1, 2).reshape(b, t, d);
-            x = x + a.matmul(_p[k + "attn.c_proj.weight"]) + _p[k + "attn.c_proj.bias"];
-            Tensor n2 = nn.functional.layer_norm(x, [d], _p[k + "ln_2.weight"], _p[k + "ln_2.bias"], 1e-5);
-            Tensor mlp = nn.functional.gelu(n2.matmul(_p[k + "mlp.c_fc.weight"]) + _p[k + "mlp.c_fc.bias"], GELU.Approximate.tanh, false);
-            x = x + mlp.matmul(_p[k + "mlp.c_proj.weight"]) + _p[k + "mlp.c_proj.bias"];
-        }
-        Tensor y = nn.functional.layer_norm(x, [d], _p["ln_f.weight"], _p["ln_f.bias"], 1e-5);
-        return y.matmul(wte.t());
-    }
+    public Tensor Forward(Tensor tokens) => Gpt2Ops.FinalHidden(n => _p[n], _spec, tokens).matmul(_p["wte.weight"].t());
 
     /// <summary>Mean next-token cross-entropy (nats) of windows [B, T + 1].</summary>
     public Tensor Loss(Tensor windows)
