@@ -240,7 +240,11 @@ public static class Study
         string specPath = Path.Combine(folder, SpecFile);
         JsonObject current = spec.ToJson();
         string[] ours = [SpecFile, "data", "runs", "cells"];
-        bool foreign = Directory.EnumerateFileSystemEntries(folder).Any(e => !ours.Contains(Path.GetFileName(e)) && !IsReport(Path.GetFileName(e)));
+        string[] entries = [.. Directory.EnumerateFileSystemEntries(folder).Select(e => Path.GetFileName(e)!)];
+        if (entries.Any(e => !ours.Contains(e) && !IsReport(e)))
+        {
+            throw new StudyException(folder, "holds files that are not part of a study; give an empty or new folder");
+        }
         if (File.Exists(specPath) && !overwrite)
         {
             JsonNode? stored = JsonNode.Parse(File.ReadAllBytes(specPath));
@@ -251,19 +255,21 @@ public static class Study
             }
             return;
         }
-        if (foreign || (!File.Exists(specPath) && ours.Skip(1).Any(n => Path.Exists(Path.Combine(folder, n)))))
+        if (!overwrite && entries.Length > 0)
         {
-            if (!overwrite || foreign)
-            {
-                throw new StudyException(folder, "holds files that are not part of a study; give an empty or new folder");
-            }
+            throw new StudyException(folder, $"holds parts of a study without its {SpecFile}; pass --overwrite to start over");
         }
-        foreach (string name in ours.Skip(1))
+        // Starting over: the earlier study's parts and reports go, so nothing stale stays beside the new results.
+        foreach (string name in entries)
         {
-            string p = Path.Combine(folder, name);
-            if (Directory.Exists(p))
+            string path = Path.Combine(folder, name);
+            if (Directory.Exists(path))
             {
-                Directory.Delete(p, recursive: true);
+                Directory.Delete(path, recursive: true);
+            }
+            else
+            {
+                File.Delete(path);
             }
         }
         WriteAtomically(specPath, current.ToJsonString(Indented) + "\n");

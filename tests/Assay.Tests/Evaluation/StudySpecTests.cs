@@ -57,6 +57,31 @@ public sealed class StudySpecTests
     }
 
     [Fact]
+    public void A_study_folder_with_foreign_files_or_parts_without_its_study_file_is_refused()
+    {
+        using TempFolder t = Folder();
+        File.WriteAllText(t.File("s.json"), Valid);
+        StudySpec spec = StudySpec.Load(t.File("s.json"));
+        Directory.CreateDirectory(t.File("out"));
+        File.WriteAllText(t.File("out/notes.txt"), "mine");
+        Assert.Contains("not part of a study", Assert.Throws<StudyException>(() => Study.Run(spec, t.File("out"))).Message, StringComparison.Ordinal);
+        Assert.Contains("not part of a study", Assert.Throws<StudyException>(() => Study.Run(spec, t.File("out"), overwrite: true)).Message, StringComparison.Ordinal);
+        Assert.True(File.Exists(t.File("out/notes.txt")));
+
+        File.Delete(t.File("out/notes.txt"));
+        Directory.CreateDirectory(t.File("out/runs"));
+        File.WriteAllText(t.File("out/results.md"), "old");
+        Assert.Contains("without its study.json", Assert.Throws<StudyException>(() => Study.Run(spec, t.File("out"))).Message, StringComparison.Ordinal);
+
+        // --overwrite starts over: the old parts and reports go before anything runs (here the empty model folder
+        // then stops the study).
+        Assert.ThrowsAny<InvalidInputException>(() => Study.Run(spec, t.File("out"), overwrite: true));
+        Assert.False(File.Exists(t.File("out/results.md")));
+        Assert.False(Directory.Exists(t.File("out/runs")));
+        Assert.True(File.Exists(t.File("out/study.json")));
+    }
+
+    [Fact]
     public void Not_json_is_named()
     {
         using TempFolder t = Folder();
