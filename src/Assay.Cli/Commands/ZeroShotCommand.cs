@@ -65,17 +65,7 @@ internal static class ZeroShotCommand
         int row = 0;
         foreach (FeatureRow f in extractor.Extract(texts))
         {
-            Span<double> scores = p.AsSpan(row * k, k);
-            v.Scores(f.Values(output), fullWords, scores);
-            double sum = 0;
-            foreach (double s in scores)
-            {
-                sum += s;
-            }
-            for (int j = 0; j < k; j++)
-            {
-                scores[j] /= sum;   // the label scores renormalized into a distribution over the labels
-            }
+            v.Distribution(f.Values(output), fullWords, p.AsSpan(row * k, k));
             row++;
         }
         ProbeReport score = ProbeReport.Score(p, [.. truth], k);

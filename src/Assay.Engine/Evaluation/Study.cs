@@ -197,7 +197,7 @@ public static class Study
         return new StudyCell(model, prompt, feature, train.Width, train.Rows, probe.Strength, score);
     }
 
-    /// <summary>The verbalizer's label scores renormalized over the labels (as assay zero-shot reports them), in the probe's class order.</summary>
+    /// <summary>The verbalizer's label distribution (as assay zero-shot reports it), in the probe's class order.</summary>
     private static StudyCell ZeroShot(string model, string prompt, string testRun, Verbalizer verbalizer, string[] classes)
     {
         if (!verbalizer.Labels.Order(StringComparer.Ordinal).SequenceEqual(classes, StringComparer.Ordinal))
@@ -223,11 +223,10 @@ public static class Study
             {
                 row[j] = (float)test.Values[(i * test.Width) + j];
             }
-            verbalizer.Scores(row, logLikelihoods: false, scores);
-            double sum = scores.Sum();
+            verbalizer.Distribution(row, logLikelihoods: false, scores);
             for (int j = 0; j < k; j++)
             {
-                p[(i * k) + position[j]] = scores[j] / sum;
+                p[(i * k) + position[j]] = scores[j];
             }
         }
         ProbeReport score = ProbeReport.Score(p, [.. test.Labels.Select(l => index[l])], k);

@@ -101,6 +101,24 @@ public sealed class Verbalizer
         }
     }
 
+    /// <summary>
+    /// The label scores of one row renormalized into a distribution over the labels (file order): what zero-shot
+    /// scoring reports and is scored on.
+    /// </summary>
+    public void Distribution(ReadOnlySpan<float> wordValues, bool logLikelihoods, Span<double> probabilities)
+    {
+        Scores(wordValues, logLikelihoods, probabilities);
+        double sum = 0;
+        foreach (double s in probabilities)
+        {
+            sum += s;
+        }
+        for (int j = 0; j < probabilities.Length; j++)
+        {
+            probabilities[j] /= sum;
+        }
+    }
+
     private static int IndexOf(IReadOnlyList<string> all, string word)
     {
         for (int i = 0; i < all.Count; i++)
