@@ -1,12 +1,14 @@
 using System.Globalization;
 using Assay.Fixtures;
 using Assay.Kernels;
+using Assay.Model;
 
 namespace Assay.Benchmarks;
 
 /// <summary>
 /// The engine's packed GEMM at transformer shapes (GPT-2 small's projections for 256 and 1,024 tokens), on every kernel
-/// variant this CPU runs, against the FMA peak measured in the same run. Medians of the repeats.
+/// variant this CPU runs, with float32 and bfloat16 panels, against the FMA peak measured in the same run. Medians of the
+/// repeats. The scalar path runs once per shape, float32 only (it is the reference, not a contender).
 /// </summary>
 internal static class GemmThroughput
 {
@@ -26,8 +28,8 @@ internal static class GemmThroughput
         var parallel = new ParallelOptions { MaxDegreeOfParallelism = threads };
         o.WriteLine(string.Create(inv, $"FMA peak (register-only Vector512 loop, {threads} threads): {peak:F1} GFLOP/s; GEMM medians of {repeats}."));
         o.WriteLine();
-        o.WriteLine("| M × K · K × N | shape | variant | GFLOP/s | of the FMA peak |");
-        o.WriteLine("|---|---|---|---:|---:|");
+        o.WriteLine("| M × K · K × N | shape | weights | variant | GFLOP/s | of the FMA peak |");
+        o.WriteLine("|---|---|---|---|---:|---:|");
         var rng = new DeterministicRandom(11);
         WarmUp(parallel);
         foreach ((int m, int k, int n, string what) in shapes)
@@ -35,12 +37,20 @@ internal static class GemmThroughput
             float[] a = new float[m * k], b = new float[k * n], bias = new float[n], c = new float[m * n];
             rng.FillNormal(a, 1);
             rng.FillNormal(b, 0.05);
-            PackedMatrix packed = PackedMatrix.FromRowMajor(b, k, n, bias);
-            foreach (KernelVariant v in new[] { KernelVariant.Vector512, KernelVariant.Vector256, KernelVariant.Scalar }.Where(KernelSelector.IsSupported))
+            foreach (WeightPrecision precision in Enum.GetValues<WeightPrecision>())
             {
-                double seconds = FmaPeak.Median(v == KernelVariant.Scalar ? 1 : repeats, () => Kernels.Kernels.Gemm(a, m, k, packed, c, n, false, v, parallel));
-                double gflops = 2.0 * m * k * n / seconds / 1e9;
-                o.WriteLine(string.Create(inv, $"| {m} × {k} · {k} × {n} | {what} | {v} | {gflops:F1} | {gflops / peak:P0} |"));
+                PackedMatrix packed = PackedMatrix.FromRowMajor(b, k, n, bias, precision);
+                foreach (KernelVariant v in new[] { KernelVariant.Vector512, KernelVariant.Vector256, KernelVariant.Scalar }.Where(KernelSelector.IsSupported))
+                {
+                    if (v == KernelVariant.Scalar && precision != WeightPrecision.Binary32)
+                    {
+                        continue;
+                    }
+                    double seconds = FmaPeak.Median(v == KernelVariant.Scalar ? 1 : repeats, () => Kernels.Kernels.Gemm(a, m, k, packed, c, n, false, v, parallel));
+                    double gflops = 2.0 * m * k * n / seconds / 1e9;
+                    string weights = precision == WeightPrecision.BFloat16 ? "bfloat16" : "float32";
+                    o.WriteLine(string.Create(inv, $"| {m} × {k} · {k} × {n} | {what} | {weights} | {v} | {gflops:F1} | {gflops / peak:P0} |"));
+                }
             }
         }
         return 0;
@@ -54,12 +64,15 @@ internal static class GemmThroughput
     {
         const int m = 64, k = 128, n = 256;
         float[] a = new float[m * k], c = new float[m * n];
-        PackedMatrix b = PackedMatrix.FromRowMajor(new float[k * n], k, n, new float[n]);
-        foreach (KernelVariant v in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
+        foreach (WeightPrecision precision in Enum.GetValues<WeightPrecision>())
         {
-            for (int i = 0; i < 200; i++)
+            PackedMatrix b = PackedMatrix.FromRowMajor(new float[k * n], k, n, new float[n], precision);
+            foreach (KernelVariant v in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
             {
-                Kernels.Kernels.Gemm(a, m, k, b, c, n, i % 2 == 0, v, parallel);
+                for (int i = 0; i < 200; i++)
+                {
+                    Kernels.Kernels.Gemm(a, m, k, b, c, n, i % 2 == 0, v, parallel);
+                }
             }
         }
         Thread.Sleep(500);

@@ -28,6 +28,7 @@ internal static class ExtractCommand
         var keep = new Option<string>("--keep") { Description = "Which end of an over-long text to keep: head or tail. The prompt is never cut.", DefaultValueFactory = _ => "head" };
         var noSpace = new Option<bool>("--no-leading-space") { Description = "Score words and completions exactly as written, without a space before them." };
         var precision = new Option<string>("--precision") { Description = "float32 or float16 for the floating features.", DefaultValueFactory = _ => "float32" };
+        var weights = ModelOption.CreateWeights();
         var budget = new Option<int>("--token-budget") { Description = "Tokens per forward pass.", DefaultValueFactory = _ => new ExtractionOptions().TokenBudget };
         var commit = new Option<int>("--commit-rows") { Description = "Rows per commit (the most a crash can lose).", DefaultValueFactory = _ => new RunOptions().CommitRows };
         var threads = new Option<int>("--threads") { Description = "Worker threads; 0 = all cores. Outputs do not depend on it.", DefaultValueFactory = _ => 0 };
@@ -39,7 +40,7 @@ internal static class ExtractCommand
         var command = new Command("extract", "Run the model over every text of an input file and write the requested features to a run folder.")
         {
             input, output, folder, prompt, features, words, completions, format, textField, idField, labelField, keep, noSpace,
-            precision, budget, commit, threads, resume, overwrite, strict, progressSeconds,
+            precision, weights, budget, commit, threads, resume, overwrite, strict, progressSeconds,
         };
         command.SetAction(r => CommandRunner.Run(() =>
         {
@@ -56,7 +57,7 @@ internal static class ExtractCommand
                     Label = label ?? "label",
                     LabelRequired = label != null,
                 },
-                r.GetValue(keep)!, !r.GetValue(noSpace), r.GetValue(precision)!, r.GetValue(budget), r.GetValue(commit),
+                r.GetValue(keep)!, !r.GetValue(noSpace), r.GetValue(precision)!, r.GetValue(weights)!, r.GetValue(budget), r.GetValue(commit),
                 r.GetValue(threads), r.GetValue(resume), r.GetValue(overwrite), r.GetValue(strict), r.GetValue(progressSeconds));
             using var cancel = new CancellationTokenSource();
             ConsoleCancelEventHandler onCancel = (_, e) =>
@@ -79,7 +80,7 @@ internal static class ExtractCommand
 
     internal sealed record Request(
         string Model, string Input, string Output, string Prompt, string Features, string? Words, string? Completions,
-        string Format, InputFields Fields, string Keep, bool LeadingSpace, string Precision, int TokenBudget, int CommitRows,
+        string Format, InputFields Fields, string Keep, bool LeadingSpace, string Precision, string Weights, int TokenBudget, int CommitRows,
         int Threads, bool Resume, bool Overwrite, bool Strict, double ProgressSeconds);
 
     internal static int Run(Request q, TextWriter o, TextWriter err, CancellationToken cancellationToken)
@@ -111,7 +112,8 @@ internal static class ExtractCommand
             throw new FileNotFoundException($"{q.Input}: no such input file", q.Input);
         }
 
-        LanguageModel model = LanguageModel.Open(q.Model);
+        WeightPrecision weights = ModelOption.ParseWeights(q.Weights);
+        LanguageModel model = LanguageModel.Open(q.Model, weights);
         var options = new RunOptions
         {
             Extraction = new ExtractionOptions

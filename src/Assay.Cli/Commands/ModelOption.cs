@@ -1,4 +1,5 @@
 using System.CommandLine;
+using Assay.Model;
 
 namespace Assay.Cli.Commands;
 
@@ -12,5 +13,19 @@ internal static class ModelOption
     {
         Description = "Checkpoint folder: config.json, *.safetensors, tokenizer files (default: the bundled demo model).",
         DefaultValueFactory = _ => new DirectoryInfo(DefaultFolder),
+    };
+
+    /// <summary>The <c>--weights</c> option: how the model's matrices are held in memory.</summary>
+    public static Option<string> CreateWeights() => new("--weights")
+    {
+        Description = "Matrices in memory: float32 (the reference) or bfloat16 (half the memory; features drift, see README).",
+        DefaultValueFactory = _ => "float32",
+    };
+
+    public static WeightPrecision ParseWeights(string name) => name switch
+    {
+        "float32" => WeightPrecision.Binary32,
+        "bfloat16" or "bf16" => WeightPrecision.BFloat16,
+        _ => throw new ArgumentException($"--weights {name}: expected float32 or bfloat16"),
     };
 }

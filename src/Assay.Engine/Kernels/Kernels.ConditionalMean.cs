@@ -33,21 +33,32 @@ internal static partial class Kernels
             p.Slice(r * n, n).CopyTo(padded.AsSpan(r * panels * W, n));
         }
         float[] result = new float[(long)rows * k];
-        float[] data = b.Data;
+        float[]? data = b.Data;
         int tasks = (k + ConditionalMeanRowsPerTask - 1) / ConditionalMeanRowsPerTask;
-        Parallel.For(0, tasks, parallel ?? DefaultParallelism, () => new float[rows * W], (task, _, lanes) =>
+        Parallel.For(0, tasks, parallel ?? DefaultParallelism, () => new float[(rows + 1) * W], (task, _, state) =>
         {
+            // The first rows·W floats are the lanes; the last W hold a bfloat16 panel row widened.
+            Span<float> lanes = state.AsSpan(0, rows * W), widened = state.AsSpan(rows * W, W);
             int k0 = task * ConditionalMeanRowsPerTask;
             int k1 = Math.Min(k, k0 + ConditionalMeanRowsPerTask);
             for (int kk = k0; kk < k1; kk++)
             {
-                Array.Clear(lanes);
+                lanes.Clear();
                 for (int panel = 0; panel < panels; panel++)
                 {
-                    ReadOnlySpan<float> bRow = data.AsSpan((panel * k * W) + (kk * W), W);
+                    ReadOnlySpan<float> bRow;
+                    if (data != null)
+                    {
+                        bRow = data.AsSpan((panel * k * W) + (kk * W), W);
+                    }
+                    else
+                    {
+                        b.CopyPanelRow(panel, kk, widened);
+                        bRow = widened;
+                    }
                     for (int r = 0; r < rows; r++)
                     {
-                        AccumulateLanes(bRow, padded.AsSpan((r * panels * W) + (panel * W), W), lanes.AsSpan(r * W, W), variant);
+                        AccumulateLanes(bRow, padded.AsSpan((r * panels * W) + (panel * W), W), lanes.Slice(r * W, W), variant);
                     }
                 }
                 for (int r = 0; r < rows; r++)
@@ -60,7 +71,7 @@ internal static partial class Kernels
                     result[((long)r * k) + kk] = sum;
                 }
             }
-            return lanes;
+            return state;
         }, static _ => { });
         result.CopyTo(output);
     }

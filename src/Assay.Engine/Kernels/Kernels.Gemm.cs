@@ -1,6 +1,7 @@
 using System.Diagnostics;
 using System.Runtime.CompilerServices;
 using System.Runtime.Intrinsics;
+using Assay.Config;
 
 namespace Assay.Kernels;
 
@@ -16,13 +17,15 @@ internal static unsafe partial class Kernels
     public static readonly ParallelOptions DefaultParallelism = new();
 
     /// <summary>
-    /// C = A·B + bias, or C += A·B + bias when <paramref name="accumulate"/> (a fused residual add). A is M × K
-    /// row-major with row stride <paramref name="lda"/>; C is M × N with row stride <paramref name="ldc"/>. Each output
-    /// element is one float32 dot product over k = 0 … K−1 in order, so results do not depend on the thread count.
+    /// C = A·B + bias, or C += A·B + bias when <paramref name="accumulate"/> (a fused residual add), then the
+    /// activation <paramref name="epilogue"/> applied to each finished tile while it is in cache (a fused bias + GELU).
+    /// A is M × K row-major with row stride <paramref name="lda"/>; C is M × N with row stride <paramref name="ldc"/>.
+    /// B may hold float32 or bfloat16 panels; either way each output element is one float32 dot product over
+    /// k = 0 … K−1 in order, so results do not depend on the thread count or the kernel path.
     /// <paramref name="parallel"/> bounds the worker threads (null: all cores).
     /// </summary>
     public static void Gemm(ReadOnlySpan<float> a, int m, int lda, PackedMatrix b, Span<float> c, int ldc,
-        bool accumulate, KernelVariant variant, ParallelOptions? parallel = null)
+        bool accumulate, KernelVariant variant, ParallelOptions? parallel = null, Activation? epilogue = null)
     {
         int k = b.Rows;
         int n = b.Columns;
@@ -42,10 +45,12 @@ internal static unsafe partial class Kernels
 
         fixed (float* pa = a)
         fixed (float* pc = c)
-        fixed (float* pb = b.Data)
+        fixed (float* pf = b.Data)
+        fixed (uint* pp = b.Pairs)
         fixed (float* pbias = b.Bias)
         {
-            var job = new GemmJob(pa, m, lda, pb, k, n, pbias, pc, ldc, accumulate, variant, mr, rowTiles);
+            var job = new GemmJob(pa, m, lda, pf != null ? (byte*)pf : (byte*)pp, pf != null, k, n, pbias, pc, ldc,
+                accumulate, variant, mr, rowTiles, epilogue);
             if ((long)m * n * k < ParallelThreshold || tasks == 1)
             {
                 for (int t = 0; t < tasks; t++)
@@ -70,22 +75,25 @@ internal static unsafe partial class Kernels
 
     private readonly struct GemmJob
     {
-        private readonly float* _a, _b, _bias, _c;
+        private readonly float* _a, _bias, _c;
+        private readonly byte* _b;
+        private readonly bool _float32;
         private readonly int _m, _lda, _k, _n, _ldc, _mr, _rowTiles;
         private readonly bool _accumulate;
         private readonly KernelVariant _variant;
+        private readonly Activation? _epilogue;
 
-        public GemmJob(float* a, int m, int lda, float* b, int k, int n, float* bias, float* c, int ldc,
-            bool accumulate, KernelVariant variant, int mr, int rowTiles)
+        public GemmJob(float* a, int m, int lda, byte* b, bool float32, int k, int n, float* bias, float* c, int ldc,
+            bool accumulate, KernelVariant variant, int mr, int rowTiles, Activation? epilogue)
         {
-            _a = a; _m = m; _lda = lda; _b = b; _k = k; _n = n; _bias = bias; _c = c; _ldc = ldc;
-            _accumulate = accumulate; _variant = variant; _mr = mr; _rowTiles = rowTiles;
+            _a = a; _m = m; _lda = lda; _b = b; _float32 = float32; _k = k; _n = n; _bias = bias; _c = c; _ldc = ldc;
+            _accumulate = accumulate; _variant = variant; _mr = mr; _rowTiles = rowTiles; _epilogue = epilogue;
         }
 
         public void Run(int panel, int rowTask)
         {
             const int W = PackedMatrix.PanelWidth;
-            float* bp = _b + ((long)panel * _k * W);
+            byte* bp = _b + ((long)panel * _k * (_float32 ? Float32Panel.RowBytes : PairPanel.RowBytes));
             float* bias = _bias == null ? null : _bias + (panel * W);
             int n0 = panel * W;
             int width = Math.Min(W, _n - n0);
@@ -124,30 +132,112 @@ internal static unsafe partial class Kernels
                         new ReadOnlySpan<float>(scratch + (r * W), width).CopyTo(new Span<float>(cTile + ((long)r * _ldc), width));
                     }
                 }
+                if (_epilogue is { } activation)
+                {
+                    for (int r = 0; r < count; r++)
+                    {
+                        Activate(new Span<float>(cTile + ((long)r * _ldc), width), activation);
+                    }
+                }
             }
         }
 
         [MethodImpl(MethodImplOptions.AggressiveInlining)]
-        private void Micro(float** rows, float* bp, float* bias, float* c, int ldc)
+        private void Micro(float** rows, byte* bp, float* bias, float* c, int ldc)
+        {
+            if (_float32)
+            {
+                Micro<Float32Panel>(rows, bp, bias, c, ldc);
+            }
+            else
+            {
+                Micro<PairPanel>(rows, bp, bias, c, ldc);
+            }
+        }
+
+        [MethodImpl(MethodImplOptions.AggressiveInlining)]
+        private void Micro<TPanel>(float** rows, byte* bp, float* bias, float* c, int ldc)
+            where TPanel : struct, IPanelRow
         {
             switch (_variant)
             {
                 case KernelVariant.Vector512:
-                    MicroVector512(rows, bp, _k, bias, c, ldc, _accumulate);
+                    MicroVector512<TPanel>(rows, bp, _k, bias, c, ldc, _accumulate);
                     break;
                 case KernelVariant.Vector256:
-                    MicroVector256(rows, bp, _k, bias, c, ldc, _accumulate);
-                    MicroVector256(rows, bp + 32, _k, bias == null ? null : bias + 32, c + 32, ldc, _accumulate);
+                    MicroVector256<TPanel>(rows, bp, 0, _k, bias, c, ldc, _accumulate);
+                    MicroVector256<TPanel>(rows, bp, 1, _k, bias == null ? null : bias + 32, c + 32, ldc, _accumulate);
                     break;
                 default:
-                    MicroScalar(rows, bp, _k, bias, c, ldc, _accumulate);
+                    MicroScalar<TPanel>(rows, bp, _k, bias, c, ldc, _accumulate);
                     break;
             }
         }
     }
 
+    /// <summary>Reads one packed panel row (64 columns of B at one k) as float32, whatever its storage.</summary>
+    private interface IPanelRow
+    {
+        /// <summary>Bytes from one k to the next.</summary>
+        static abstract int RowBytes { get; }
+
+        /// <summary>Column j of the row.</summary>
+        static abstract float Load(byte* row, int j);
+
+        /// <summary>Columns 16q … 16q + 15.</summary>
+        static abstract Vector512<float> Load512(byte* row, int q);
+
+        /// <summary>Columns 32h + 8q … 32h + 8q + 7.</summary>
+        static abstract Vector256<float> Load256(byte* row, int h, int q);
+    }
+
+    /// <summary>float32 panels: 64 floats per row.</summary>
+    private readonly struct Float32Panel : IPanelRow
+    {
+        public static int RowBytes => PackedMatrix.PanelWidth * sizeof(float);
+
+        [MethodImpl(MethodImplOptions.AggressiveInlining)]
+        public static float Load(byte* row, int j) => ((float*)row)[j];
+
+        [MethodImpl(MethodImplOptions.AggressiveInlining)]
+        public static Vector512<float> Load512(byte* row, int q) => Vector512.Load((float*)row + (16 * q));
+
+        [MethodImpl(MethodImplOptions.AggressiveInlining)]
+        public static Vector256<float> Load256(byte* row, int h, int q) => Vector256.Load((float*)row + (32 * h) + (8 * q));
+    }
+
+    /// <summary>bfloat16 panels: 32 words per row, two columns per word (see <see cref="PackedMatrix"/>).</summary>
+    private readonly struct PairPanel : IPanelRow
+    {
+        public static int RowBytes => PackedMatrix.PairWidth * sizeof(uint);
+
+        [MethodImpl(MethodImplOptions.AggressiveInlining)]
+        public static float Load(byte* row, int j)
+        {
+            (int word, bool upper) = PackedMatrix.PairSlot(j);
+            return PackedMatrix.Widen(((uint*)row)[word], upper);
+        }
+
+        [MethodImpl(MethodImplOptions.AggressiveInlining)]
+        public static Vector512<float> Load512(byte* row, int q)
+        {
+            // q = 0: upper halves of words 0–15; 1: their lower halves; 2 and 3: the same for words 16–31.
+            Vector512<uint> w = Vector512.Load((uint*)row + (16 * (q >> 1)));
+            return ((q & 1) == 0 ? w & Vector512.Create(0xFFFF0000u) : Vector512.ShiftLeft(w, 16)).AsSingle();
+        }
+
+        [MethodImpl(MethodImplOptions.AggressiveInlining)]
+        public static Vector256<float> Load256(byte* row, int h, int q)
+        {
+            // Columns 32h + 8q: q = 0, 1 are upper halves of words 16h + 8q; q = 2, 3 lower halves of words 16h + 8(q − 2).
+            Vector256<uint> w = Vector256.Load((uint*)row + (16 * h) + (8 * (q & 1)));
+            return (q < 2 ? w & Vector256.Create(0xFFFF0000u) : Vector256.ShiftLeft(w, 16)).AsSingle();
+        }
+    }
+
     /// <summary>A 4 × 64 tile with scalar arithmetic, accumulating over k in order.</summary>
-    private static void MicroScalar(float** rows, float* bp, int k, float* bias, float* c, int ldc, bool accumulate)
+    private static void MicroScalar<TPanel>(float** rows, byte* bp, int k, float* bias, float* c, int ldc, bool accumulate)
+        where TPanel : struct, IPanelRow
     {
         const int W = PackedMatrix.PanelWidth;
         float* acc = stackalloc float[4 * W];
@@ -160,14 +250,14 @@ internal static unsafe partial class Kernels
         }
         for (int p = 0; p < k; p++)
         {
-            float* bRow = bp + ((long)p * W);
+            byte* bRow = bp + ((long)p * TPanel.RowBytes);
             for (int r = 0; r < 4; r++)
             {
                 float av = rows[r][p];
                 float* accRow = acc + (r * W);
                 for (int j = 0; j < W; j++)
                 {
-                    accRow[j] = MathF.FusedMultiplyAdd(av, bRow[j], accRow[j]);
+                    accRow[j] = MathF.FusedMultiplyAdd(av, TPanel.Load(bRow, j), accRow[j]);
                 }
             }
         }
@@ -180,10 +270,10 @@ internal static unsafe partial class Kernels
         }
     }
 
-    /// <summary>A 3 × 32 tile in 256-bit vectors (12 accumulators); called twice per 64-wide panel.</summary>
-    private static void MicroVector256(float** rows, float* bp, int k, float* bias, float* c, int ldc, bool accumulate)
+    /// <summary>A 3 × 32 tile (half <paramref name="h"/> of a panel) in 256-bit vectors (12 accumulators).</summary>
+    private static void MicroVector256<TPanel>(float** rows, byte* bp, int h, int k, float* bias, float* c, int ldc, bool accumulate)
+        where TPanel : struct, IPanelRow
     {
-        const int W = PackedMatrix.PanelWidth;
         float* a0 = rows[0], a1 = rows[1], a2 = rows[2];
         float* c0 = c, c1 = c + ldc, c2 = c + (2L * ldc);
         Vector256<float> z = Vector256<float>.Zero;
@@ -195,9 +285,9 @@ internal static unsafe partial class Kernels
         Vector256<float> x22 = accumulate ? Vector256.Load(c2 + 16) : z, x23 = accumulate ? Vector256.Load(c2 + 24) : z;
         for (int p = 0; p < k; p++)
         {
-            float* bRow = bp + ((long)p * W);
-            Vector256<float> b0 = Vector256.Load(bRow), b1 = Vector256.Load(bRow + 8);
-            Vector256<float> b2 = Vector256.Load(bRow + 16), b3 = Vector256.Load(bRow + 24);
+            byte* bRow = bp + ((long)p * TPanel.RowBytes);
+            Vector256<float> b0 = TPanel.Load256(bRow, h, 0), b1 = TPanel.Load256(bRow, h, 1);
+            Vector256<float> b2 = TPanel.Load256(bRow, h, 2), b3 = TPanel.Load256(bRow, h, 3);
             Vector256<float> v = Vector256.Create(a0[p]);
             x00 = Vector256.FusedMultiplyAdd(v, b0, x00); x01 = Vector256.FusedMultiplyAdd(v, b1, x01);
             x02 = Vector256.FusedMultiplyAdd(v, b2, x02); x03 = Vector256.FusedMultiplyAdd(v, b3, x03);
@@ -222,9 +312,9 @@ internal static unsafe partial class Kernels
     }
 
     /// <summary>A 6 × 64 tile in 512-bit vectors (24 accumulators, 4 panel loads and 6 broadcasts per k).</summary>
-    private static void MicroVector512(float** rows, float* bp, int k, float* bias, float* c, int ldc, bool accumulate)
+    private static void MicroVector512<TPanel>(float** rows, byte* bp, int k, float* bias, float* c, int ldc, bool accumulate)
+        where TPanel : struct, IPanelRow
     {
-        const int W = PackedMatrix.PanelWidth;
         float* a0 = rows[0], a1 = rows[1], a2 = rows[2], a3 = rows[3], a4 = rows[4], a5 = rows[5];
         float* c0 = c, c1 = c + ldc, c2 = c + (2L * ldc), c3 = c + (3L * ldc), c4 = c + (4L * ldc), c5 = c + (5L * ldc);
         Vector512<float> z = Vector512<float>.Zero;
@@ -242,9 +332,9 @@ internal static unsafe partial class Kernels
         Vector512<float> x52 = accumulate ? Vector512.Load(c5 + 32) : z, x53 = accumulate ? Vector512.Load(c5 + 48) : z;
         for (int p = 0; p < k; p++)
         {
-            float* bRow = bp + ((long)p * W);
-            Vector512<float> b0 = Vector512.Load(bRow), b1 = Vector512.Load(bRow + 16);
-            Vector512<float> b2 = Vector512.Load(bRow + 32), b3 = Vector512.Load(bRow + 48);
+            byte* bRow = bp + ((long)p * TPanel.RowBytes);
+            Vector512<float> b0 = TPanel.Load512(bRow, 0), b1 = TPanel.Load512(bRow, 1);
+            Vector512<float> b2 = TPanel.Load512(bRow, 2), b3 = TPanel.Load512(bRow, 3);
             Vector512<float> v = Vector512.Create(a0[p]);
             x00 = Vector512.FusedMultiplyAdd(v, b0, x00); x01 = Vector512.FusedMultiplyAdd(v, b1, x01);
             x02 = Vector512.FusedMultiplyAdd(v, b2, x02); x03 = Vector512.FusedMultiplyAdd(v, b3, x03);

@@ -1,22 +1,41 @@
+using System.Runtime.CompilerServices;
+using Assay.Model;
+
 namespace Assay.Kernels;
 
 /// <summary>
 /// The right-hand matrix B (K × N) of <c>C = A·B + bias</c>, packed once at load into column panels of
 /// <see cref="PanelWidth"/> columns: panel p holds, for k = 0 … K−1, the columns p·W … p·W+W−1 of row k, contiguous,
-/// zero-padded past N. The GEMM micro-kernels stream a panel with unit stride. The bias, if any, is padded likewise.
+/// zero-padded past N. The GEMM micro-kernels stream a panel with unit stride. The bias, if any, is padded likewise
+/// and stays float32.
+/// <para>
+/// In bfloat16 (<see cref="Pairs"/>) a panel row is 32 words of 32 bits: word j (j &lt; 16) holds column j in its
+/// upper half and column j + 16 in its lower half, word 16 + j holds columns 32 + j and 48 + j. A kernel widens 16
+/// columns with one AND (upper halves) or one shift left by 16 (lower halves): bf16 → fp32 is exact.
+/// </para>
 /// </summary>
 internal sealed class PackedMatrix
 {
     /// <summary>Columns per panel: four 512-bit vectors of float32.</summary>
     public const int PanelWidth = 64;
 
-    private PackedMatrix(int rows, int columns, float[] data, float[]? bias)
+    /// <summary>32-bit words per bfloat16 panel row.</summary>
+    public const int PairWidth = PanelWidth / 2;
+
+    private PackedMatrix(int rows, int columns, float[]? data, uint[]? pairs, float[]? bias)
     {
         Rows = rows;
         Columns = columns;
         Data = data;
+        Pairs = pairs;
         Bias = bias;
     }
+
+    /// <summary>How the panels are stored.</summary>
+    public WeightPrecision Precision => Pairs == null ? WeightPrecision.Binary32 : WeightPrecision.BFloat16;
+
+    /// <summary>Bytes the panels and the bias take.</summary>
+    public long Bytes => (Data?.LongLength ?? 0) * 4 + (Pairs?.LongLength ?? 0) * 4 + (Bias?.LongLength ?? 0) * 4;
 
     /// <summary>K, the shared dimension.</summary>
     public int Rows { get; }
@@ -27,33 +46,92 @@ internal sealed class PackedMatrix
     /// <summary>Number of column panels, ⌈N / W⌉.</summary>
     public int Panels => (Columns + PanelWidth - 1) / PanelWidth;
 
-    /// <summary>The panels, each K·W floats, pinned so kernels can hold pointers into them.</summary>
-    public float[] Data { get; }
+    /// <summary>The float32 panels, each K·W floats, pinned so kernels can hold pointers into them; null in bfloat16.</summary>
+    public float[]? Data { get; }
+
+    /// <summary>The bfloat16 panels, each K·W/2 words (see the class remarks), pinned; null in float32.</summary>
+    public uint[]? Pairs { get; }
 
     /// <summary>The bias padded to Panels·W floats, or null.</summary>
     public float[]? Bias { get; }
 
     /// <summary>Packs a row-major K × N matrix (the [in, out] layout of GPT-2's projection layers).</summary>
-    public static PackedMatrix FromRowMajor(ReadOnlySpan<float> b, int rows, int columns, ReadOnlySpan<float> bias = default) =>
-        Pack(b, rows, columns, transposed: false, bias);
+    public static PackedMatrix FromRowMajor(ReadOnlySpan<float> b, int rows, int columns, ReadOnlySpan<float> bias = default,
+        WeightPrecision precision = WeightPrecision.Binary32) =>
+        Pack(b, rows, columns, transposed: false, bias, precision);
 
     /// <summary>Packs the transpose of a row-major N × K matrix (an [out, in] layout, e.g. the token embedding
     /// used as the output head: logits = h · Eᵀ).</summary>
-    public static PackedMatrix FromTransposed(ReadOnlySpan<float> bt, int rows, int columns) =>
-        Pack(bt, rows, columns, transposed: true, default);
+    public static PackedMatrix FromTransposed(ReadOnlySpan<float> bt, int rows, int columns,
+        WeightPrecision precision = WeightPrecision.Binary32) =>
+        Pack(bt, rows, columns, transposed: true, default, precision);
 
     /// <summary>Copies column n of B (K values; for a transposed pack, row n of the source) into destination.</summary>
     public void CopyColumn(int n, Span<float> destination)
     {
-        long baseIndex = (long)(n / PanelWidth) * Rows * PanelWidth + (n % PanelWidth);
-        float[] data = Data;
+        int panel = n / PanelWidth, j = n % PanelWidth;
+        if (Data is { } data)
+        {
+            long baseIndex = ((long)panel * Rows * PanelWidth) + j;
+            for (int k = 0; k < destination.Length; k++)
+            {
+                destination[k] = data[baseIndex + ((long)k * PanelWidth)];
+            }
+            return;
+        }
+        (int word, bool upper) = PairSlot(j);
+        long pairBase = ((long)panel * Rows * PairWidth) + word;
+        uint[] pairs = Pairs!;
         for (int k = 0; k < destination.Length; k++)
         {
-            destination[k] = data[baseIndex + ((long)k * PanelWidth)];
+            destination[k] = Widen(pairs[pairBase + ((long)k * PairWidth)], upper);
         }
     }
 
-    private static PackedMatrix Pack(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias)
+    /// <summary>Widens panel row k of panel p (64 values) to float32.</summary>
+    public void CopyPanelRow(int panel, int k, Span<float> destination)
+    {
+        if (Data is { } data)
+        {
+            data.AsSpan((int)(((long)panel * Rows * PanelWidth) + ((long)k * PanelWidth)), PanelWidth).CopyTo(destination);
+            return;
+        }
+        ReadOnlySpan<uint> row = Pairs.AsSpan((int)(((long)panel * Rows * PairWidth) + ((long)k * PairWidth)), PairWidth);
+        for (int j = 0; j < PanelWidth; j++)
+        {
+            (int word, bool upper) = PairSlot(j);
+            destination[j] = Widen(row[word], upper);
+        }
+    }
+
+    /// <summary>bfloat16 of a float32, rounded to nearest, ties to even (NaN stays NaN).</summary>
+    public static ushort ToBFloat16(float value)
+    {
+        uint bits = BitConverter.SingleToUInt32Bits(value);
+        if (float.IsNaN(value))
+        {
+            return (ushort)((bits >> 16) | 0x40);
+        }
+        uint rounding = 0x7FFFu + ((bits >> 16) & 1u);
+        return (ushort)((bits + rounding) >> 16);
+    }
+
+    /// <summary>The word and half that hold column j (0 … 63) of a bfloat16 panel row.</summary>
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    public static (int Word, bool Upper) PairSlot(int j) => j switch
+    {
+        < 16 => (j, true),
+        < 32 => (j - 16, false),
+        < 48 => (j - 16, true),
+        _ => (j - 32, false),
+    };
+
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    public static float Widen(uint word, bool upper) =>
+        BitConverter.UInt32BitsToSingle(upper ? word & 0xFFFF0000u : word << 16);
+
+    private static PackedMatrix Pack(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias,
+        WeightPrecision precision)
     {
         ArgumentOutOfRangeException.ThrowIfNegativeOrZero(rows);
         ArgumentOutOfRangeException.ThrowIfNegativeOrZero(columns);
@@ -64,6 +142,11 @@ internal sealed class PackedMatrix
         if (!bias.IsEmpty && bias.Length != columns)
         {
             throw new ArgumentException($"bias holds {bias.Length} values; expected {columns}", nameof(bias));
+        }
+
+        if (precision == WeightPrecision.BFloat16)
+        {
+            return PackPairs(source, rows, columns, transposed, bias);
         }
 
         int panels = (columns + PanelWidth - 1) / PanelWidth;
@@ -90,12 +173,45 @@ internal sealed class PackedMatrix
             }
         }
 
-        float[]? paddedBias = null;
-        if (!bias.IsEmpty)
+        return new PackedMatrix(rows, columns, data, null, PadBias(bias, panels));
+    }
+
+    private static PackedMatrix PackPairs(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias)
+    {
+        int panels = (columns + PanelWidth - 1) / PanelWidth;
+        uint[] pairs = GC.AllocateArray<uint>(checked(panels * rows * PairWidth), pinned: true);
+        Span<float> row = stackalloc float[PanelWidth];
+        for (int p = 0; p < panels; p++)
         {
-            paddedBias = GC.AllocateArray<float>(panels * PanelWidth, pinned: true);
-            bias.CopyTo(paddedBias);
+            int n0 = p * PanelWidth;
+            int width = Math.Min(PanelWidth, columns - n0);
+            for (int k = 0; k < rows; k++)
+            {
+                row.Clear();
+                for (int j = 0; j < width; j++)
+                {
+                    row[j] = transposed ? source[((n0 + j) * rows) + k] : source[(k * columns) + n0 + j];
+                }
+                Span<uint> dst = pairs.AsSpan((p * rows * PairWidth) + (k * PairWidth), PairWidth);
+                for (int w = 0; w < 16; w++)
+                {
+                    dst[w] = ((uint)ToBFloat16(row[w]) << 16) | ToBFloat16(row[w + 16]);
+                    dst[w + 16] = ((uint)ToBFloat16(row[w + 32]) << 16) | ToBFloat16(row[w + 48]);
+                }
+            }
         }
-        return new PackedMatrix(rows, columns, data, paddedBias);
+
+        return new PackedMatrix(rows, columns, null, pairs, PadBias(bias, panels));
+    }
+
+    private static float[]? PadBias(ReadOnlySpan<float> bias, int panels)
+    {
+        if (bias.IsEmpty)
+        {
+            return null;
+        }
+        float[] padded = GC.AllocateArray<float>(panels * PanelWidth, pinned: true);
+        bias.CopyTo(padded);
+        return padded;
     }
 }

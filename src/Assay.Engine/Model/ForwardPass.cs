@@ -34,8 +34,7 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
             Gemm(attn, total, d, b.AttentionOut, x, d, accumulate: true, variant, parallel);
 
             Normalize(x, h, total, b.Norm2Gain, b.Norm2Bias);
-            Gemm(h, total, d, b.MlpIn, mlp, m, accumulate: false, variant, parallel);
-            Activation(mlp, total, m);
+            Gemm(h, total, d, b.MlpIn, mlp, m, accumulate: false, variant, parallel, epilogue: config.Activation);
             Gemm(mlp, total, m, b.MlpOut, x, d, accumulate: true, variant, parallel);
 
             if (l + 1 < layers)
@@ -51,7 +50,7 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
         return new ForwardResult(d, config.VocabularySize, starts, lengths, hidden, logits, options.Logits);
     }
 
-    /// <summary>Rows a worker takes at a time in the row-wise steps (LayerNorm, activation).</summary>
+    /// <summary>Rows a worker takes at a time in LayerNorm.</summary>
     private const int RowBlock = 32;
 
     /// <summary>LayerNorm of every row, rows spread over the workers (each row's result is its own: same bits).</summary>
@@ -60,13 +59,6 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
         int d = config.Width;
         float epsilon = config.NormEpsilon;
         ForRowBlocks(rows, (first, count) => LayerNorm(x.AsSpan(first * d, count * d), y.AsSpan(first * d, count * d), count, gain, bias, epsilon));
-    }
-
-    /// <summary>The MLP activation, elementwise, rows spread over the workers.</summary>
-    private void Activation(float[] values, int rows, int width)
-    {
-        Config.Activation activation = config.Activation;
-        ForRowBlocks(rows, (first, count) => Activate(values.AsSpan(first * width, count * width), activation));
     }
 
     private void ForRowBlocks(int rows, Action<int, int> body)

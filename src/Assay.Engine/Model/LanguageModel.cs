@@ -8,7 +8,8 @@ namespace Assay.Model;
 
 /// <summary>
 /// A GPT-2-family language model opened from a checkpoint folder (config.json, safetensors weights, tokenizer files),
-/// with every parameter converted to float32 in memory. Immutable once opened: one instance can serve forward passes
+/// with every parameter converted to float32 in memory (or its matrices to bfloat16, see <see cref="WeightPrecision"/>).
+/// Immutable once opened: one instance can serve forward passes
 /// from several threads at once.
 /// </summary>
 public sealed class LanguageModel
@@ -38,12 +39,26 @@ public sealed class LanguageModel
     /// <summary>The kernel path forward passes use (see <see cref="KernelSelector"/>).</summary>
     public static KernelVariant Kernels => KernelSelector.Current;
 
+    /// <summary>How the matrices are held in memory.</summary>
+    public WeightPrecision Precision => _weights.Precision;
+
+    /// <summary>Bytes the converted parameters take in memory.</summary>
+    public long WeightBytes => _weights.Bytes;
+
     /// <summary>Opens a checkpoint folder: reads and validates config.json, the tokenizer and every tensor.</summary>
     /// <exception cref="ModelConfigException">config.json is missing, malformed or unsupported.</exception>
     /// <exception cref="WeightsFormatException">The weights are malformed or do not match the config.</exception>
     /// <exception cref="TokenizerFileException">The tokenizer files are malformed or do not fit the model.</exception>
-    public static LanguageModel Open(string folder)
+    public static LanguageModel Open(string folder) => Open(folder, WeightPrecision.Binary32);
+
+    /// <summary>Opens a checkpoint folder holding its matrices in <paramref name="precision"/>.</summary>
+    /// <inheritdoc cref="Open(string)"/>
+    public static LanguageModel Open(string folder, WeightPrecision precision)
     {
+        if (!Enum.IsDefined(precision))
+        {
+            throw new ArgumentOutOfRangeException(nameof(precision), precision, "not a weight precision");
+        }
         ArgumentNullException.ThrowIfNull(folder);
         if (!Directory.Exists(folder))
         {
@@ -58,7 +73,7 @@ public sealed class LanguageModel
                 $"the tokenizer has ids up to {tokenizer.VocabularySize - 1}; {configPath} has vocab_size {config.VocabularySize}");
         }
         using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
-        ModelWeights weights = ModelWeights.Load(checkpoint, config, configPath);
+        ModelWeights weights = ModelWeights.Load(checkpoint, config, configPath, precision);
         return new LanguageModel(folder, config, tokenizer, weights);
     }
 

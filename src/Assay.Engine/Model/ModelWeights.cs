@@ -47,6 +47,25 @@ internal sealed class ModelWeights
     /// <summary>The output head as a d × V packed matrix; the same object as <see cref="TokenEmbedding"/> when tied.</summary>
     public PackedMatrix Head { get; }
 
+    /// <summary>Storage of the packed matrices.</summary>
+    public WeightPrecision Precision => Head.Precision;
+
+    /// <summary>Bytes every parameter takes in memory, packed (a tied head counted once).</summary>
+    public long Bytes
+    {
+        get
+        {
+            long bytes = TokenEmbedding.Bytes + (ReferenceEquals(Head, TokenEmbedding) ? 0 : Head.Bytes)
+                + (4L * (PositionEmbedding.LongLength + FinalNormGain.LongLength + FinalNormBias.LongLength));
+            foreach (BlockWeights b in Blocks)
+            {
+                bytes += b.Attention.Bytes + b.AttentionOut.Bytes + b.MlpIn.Bytes + b.MlpOut.Bytes
+                    + (4L * (b.Norm1Gain.LongLength + b.Norm1Bias.LongLength + b.Norm2Gain.LongLength + b.Norm2Bias.LongLength));
+            }
+            return bytes;
+        }
+    }
+
     /// <summary>Every parameter name and shape the config implies, without prefix, in checkpoint order.</summary>
     public static IEnumerable<(string Name, long[] Shape)> ExpectedParameters(ModelConfig c)
     {
@@ -74,18 +93,18 @@ internal sealed class ModelWeights
     }
 
     /// <summary>Checks the checkpoint against the config and converts every parameter; throws on the first mismatch.</summary>
-    public static ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath)
+    public static ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath, WeightPrecision precision)
     {
         string prefix = Check(checkpoint, config, configPath).NamePrefix;
         var reader = new TensorReader(checkpoint, prefix);
         int d = config.Width, m = config.InnerWidth, v = config.VocabularySize;
 
         float[] wte = reader.Read("wte.weight");
-        PackedMatrix tokenEmbedding = PackedMatrix.FromTransposed(wte, d, v);
+        PackedMatrix tokenEmbedding = PackedMatrix.FromTransposed(wte, d, v, precision);
         PackedMatrix head = tokenEmbedding;
         if (!config.TiedHead)
         {
-            head = PackedMatrix.FromTransposed(reader.ReadUnprefixed(HeadName), d, v);
+            head = PackedMatrix.FromTransposed(reader.ReadUnprefixed(HeadName), d, v, precision);
         }
         else if (checkpoint.TryGetTensor(HeadName, out _))
         {
@@ -105,11 +124,11 @@ internal sealed class ModelWeights
             string b = "h." + i.ToString(CultureInfo.InvariantCulture) + ".";
             blocks[i] = new BlockWeights(
                 reader.Read(b + "ln_1.weight"), reader.Read(b + "ln_1.bias"),
-                PackedMatrix.FromRowMajor(reader.Read(b + "attn.c_attn.weight"), d, 3 * d, reader.Read(b + "attn.c_attn.bias")),
-                PackedMatrix.FromRowMajor(reader.Read(b + "attn.c_proj.weight"), d, d, reader.Read(b + "attn.c_proj.bias")),
+                PackedMatrix.FromRowMajor(reader.Read(b + "attn.c_attn.weight"), d, 3 * d, reader.Read(b + "attn.c_attn.bias"), precision),
+                PackedMatrix.FromRowMajor(reader.Read(b + "attn.c_proj.weight"), d, d, reader.Read(b + "attn.c_proj.bias"), precision),
                 reader.Read(b + "ln_2.weight"), reader.Read(b + "ln_2.bias"),
-                PackedMatrix.FromRowMajor(reader.Read(b + "mlp.c_fc.weight"), d, m, reader.Read(b + "mlp.c_fc.bias")),
-                PackedMatrix.FromRowMajor(reader.Read(b + "mlp.c_proj.weight"), m, d, reader.Read(b + "mlp.c_proj.bias")));
+                PackedMatrix.FromRowMajor(reader.Read(b + "mlp.c_fc.weight"), d, m, reader.Read(b + "mlp.c_fc.bias"), precision),
+                PackedMatrix.FromRowMajor(reader.Read(b + "mlp.c_proj.weight"), m, d, reader.Read(b + "mlp.c_proj.bias"), precision));
         }
         return new ModelWeights(tokenEmbedding, wpe, blocks, reader.Read("ln_f.weight"), reader.Read("ln_f.bias"), head);
     }

@@ -275,6 +275,7 @@ public static class ExtractionRun
                 ["vocabulary"] = model.Config.VocabularySize,
                 ["context"] = model.Config.ContextLength,
                 ["tokenizer"] = Path.GetFileName(model.Tokenizer.Source),
+                ["weights"] = model.Precision == WeightPrecision.BFloat16 ? "bfloat16" : "float32",
                 ["files"] = modelFiles,
             },
             ["input"] = new JsonObject

@@ -11,9 +11,9 @@ namespace Assay.Tests.Cli;
 public sealed class ExtractCommandTests
 {
     private static ExtractCommand.Request Request(string input, string output, string features = "hidden,cmean", bool resume = false,
-        string prompt = "{text} It is a kind of", int commitRows = 8, string? words = null) => new(
+        string prompt = "{text} It is a kind of", int commitRows = 8, string? words = null, string weights = "float32") => new(
         Checkpoints.Folder(FeatureExtractorTests.Spec), input, output, prompt, features, words, null, "auto", new InputFields(),
-        "head", LeadingSpace: true, "float32", TokenBudget: 4096, commitRows, Threads: 0, resume, Overwrite: false, Strict: false,
+        "head", LeadingSpace: true, "float32", weights, TokenBudget: 4096, commitRows, Threads: 0, resume, Overwrite: false, Strict: false,
         ProgressSeconds: 0.1);
 
     [Fact]
@@ -47,6 +47,24 @@ public sealed class ExtractCommandTests
         ArgumentException e = Assert.Throws<ArgumentException>(() =>
             ExtractCommand.Run(Request(input, temp.File("run"), features), TextWriter.Null, TextWriter.Null, CancellationToken.None));
         Assert.Contains(message, e.Message, StringComparison.Ordinal);
+    }
+
+    [Fact]
+    public void Bfloat16_weights_are_recorded_and_a_run_cannot_switch_them()
+    {
+        using var temp = new TempFolder();
+        string input = ExtractionRunTests.WriteInput(temp, 12);
+        Assert.Equal(0, ExtractCommand.Run(Request(input, temp.File("run"), weights: "bfloat16"), TextWriter.Null, TextWriter.Null, CancellationToken.None));
+        using (var record = System.Text.Json.JsonDocument.Parse(File.ReadAllBytes(Path.Combine(temp.File("run"), ExtractionRun.RecordFile))))
+        {
+            Assert.Equal("bfloat16", record.RootElement.GetProperty("settings").GetProperty("model").GetProperty("weights").GetString());
+        }
+        RunFolderException e = Assert.Throws<RunFolderException>(() =>
+            ExtractCommand.Run(Request(input, temp.File("run"), resume: true), TextWriter.Null, TextWriter.Null, CancellationToken.None));
+        Assert.Contains("different model", e.Message, StringComparison.Ordinal);
+        ArgumentException bad = Assert.Throws<ArgumentException>(() =>
+            ExtractCommand.Run(Request(input, temp.File("other"), weights: "int4"), TextWriter.Null, TextWriter.Null, CancellationToken.None));
+        Assert.Contains("--weights int4", bad.Message, StringComparison.Ordinal);
     }
 
     [Fact]

@@ -1,5 +1,6 @@
 using Assay.Fixtures;
 using Assay.Kernels;
+using Assay.Model;
 using K = Assay.Kernels.Kernels;
 
 namespace Assay.Tests.Kernels;
@@ -34,23 +35,32 @@ public sealed class ConditionalMeanTests
                     row[i] /= sum;
                 }
             }
-            PackedMatrix head = PackedMatrix.FromTransposed(e, d, v);
-            float[] phi = new float[rows * d];
-            K.ConditionalMean(p, rows, head, phi, variant);
-            for (int r = 0; r < rows; r++)
+            foreach (WeightPrecision precision in Enum.GetValues<WeightPrecision>())
             {
-                for (int j = 0; j < d; j++)
+                // In bfloat16 the reference sums over E rounded to bfloat16 (GemmTests.RoundToBFloat16).
+                float[] stored = precision == WeightPrecision.BFloat16 ? [.. e.Select(GemmTests.RoundToBFloat16)] : e;
+                Check(variant, precision, rows, d, v, p, stored, PackedMatrix.FromTransposed(e, d, v, precision));
+            }
+        }
+    }
+
+    private static void Check(KernelVariant variant, WeightPrecision precision, int rows, int d, int v, float[] p, float[] e, PackedMatrix head)
+    {
+        float[] phi = new float[rows * d];
+        K.ConditionalMean(p, rows, head, phi, variant);
+        for (int r = 0; r < rows; r++)
+        {
+            for (int j = 0; j < d; j++)
+            {
+                double expected = 0, scale = 0;
+                for (int i = 0; i < v; i++)
                 {
-                    double expected = 0, scale = 0;
-                    for (int i = 0; i < v; i++)
-                    {
-                        expected += (double)p[(r * v) + i] * e[(i * d) + j];
-                        scale += Math.Abs((double)p[(r * v) + i] * e[(i * d) + j]);
-                    }
-                    // A float32 sum of V terms: error ≤ ~V·2⁻²⁴·Σ|terms| in the worst case; 64 lanes make it far smaller.
-                    Assert.True(Math.Abs(phi[(r * d) + j] - expected) <= 1e-6 * scale + 1e-12,
-                        $"{variant} rows={rows} d={d} V={v}: Φp[{r},{j}] = {phi[(r * d) + j]}, expected {expected}");
+                    expected += (double)p[(r * v) + i] * e[(i * d) + j];
+                    scale += Math.Abs((double)p[(r * v) + i] * e[(i * d) + j]);
                 }
+                // A float32 sum of V terms: error ≤ ~V·2⁻²⁴·Σ|terms| in the worst case; 64 lanes make it far smaller.
+                Assert.True(Math.Abs(phi[(r * d) + j] - expected) <= 1e-6 * scale + 1e-12,
+                    $"{variant} {precision} rows={rows} d={d} V={v}: Φp[{r},{j}] = {phi[(r * d) + j]}, expected {expected}");
             }
         }
     }
@@ -61,14 +71,17 @@ public sealed class ConditionalMeanTests
         var rng = new DeterministicRandom(12);
         int rows = 3, d = 40, v = 1000;
         float[] e = GemmTests.Random(ref rng, v * d), p = GemmTests.Random(ref rng, rows * v);
-        PackedMatrix head = PackedMatrix.FromTransposed(e, d, v);
-        float[] scalar = new float[rows * d];
-        K.ConditionalMean(p, rows, head, scalar, KernelVariant.Scalar);
-        foreach (KernelVariant variant in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
+        foreach (WeightPrecision precision in Enum.GetValues<WeightPrecision>())
         {
-            float[] phi = new float[rows * d];
-            K.ConditionalMean(p, rows, head, phi, variant, new ParallelOptions { MaxDegreeOfParallelism = 1 });
-            Assert.Equal(scalar, phi);
+            PackedMatrix head = PackedMatrix.FromTransposed(e, d, v, precision);
+            float[] scalar = new float[rows * d];
+            K.ConditionalMean(p, rows, head, scalar, KernelVariant.Scalar);
+            foreach (KernelVariant variant in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
+            {
+                float[] phi = new float[rows * d];
+                K.ConditionalMean(p, rows, head, phi, variant, new ParallelOptions { MaxDegreeOfParallelism = 1 });
+                Assert.Equal(scalar, phi);
+            }
         }
     }
 }

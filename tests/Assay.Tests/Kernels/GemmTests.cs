@@ -1,5 +1,7 @@
 using Assay.Fixtures;
+using Assay.Config;
 using Assay.Kernels;
+using Assay.Model;
 using K = Assay.Kernels.Kernels;
 
 namespace Assay.Tests.Kernels;
@@ -71,6 +73,96 @@ public sealed class GemmTests
             p.CopyColumn(nIndex, col);
             Assert.Equal(bt.AsSpan(nIndex * 9, 9).ToArray(), col);
         }
+    }
+
+    [Theory]
+    [MemberData(nameof(Variants))]
+    public void BFloat16_panels_match_the_reference_on_the_rounded_matrix(KernelVariant variant)
+    {
+        // The reference is the float64 product with B rounded to bfloat16 by RoundToBFloat16 below, so only the
+        // float32 accumulation error remains, as for float32 panels.
+        var rng = new DeterministicRandom(21);
+        foreach ((int m, int n, int k) in new[] { (1, 1, 1), (7, 63, 17), (13, 65, 64), (49, 130, 255), (6, 64, 2), (37, 257, 31) })
+        {
+            float[] a = Random(ref rng, m * k), b = Random(ref rng, k * n), bias = Random(ref rng, n);
+            float[] c = Random(ref rng, m * n);
+            float[] c0 = (float[])c.Clone();
+            double[] expected = ReferenceKernels.Gemm(a, [.. b.Select(RoundToBFloat16)], bias, c0, m, k, n);
+            K.Gemm(a, m, k, PackedMatrix.FromRowMajor(b, k, n, bias, WeightPrecision.BFloat16), c, n, accumulate: true, variant);
+            for (int i = 0; i < expected.Length; i++)
+            {
+                double tol = 1e-5 * Math.Sqrt(k) * Math.Max(1, Math.Abs(expected[i]));
+                Assert.True(Math.Abs(c[i] - expected[i]) <= tol, $"{variant} bf16 m={m} n={n} k={k}: C[{i}] = {c[i]}, expected {expected[i]}");
+            }
+        }
+    }
+
+    [Fact]
+    public void BFloat16_panels_give_the_same_bits_on_every_path_and_with_the_activation_fused()
+    {
+        var rng = new DeterministicRandom(22);
+        int m = 50, k = 96, n = 200;
+        float[] a = Random(ref rng, m * k), b = Random(ref rng, k * n), bias = Random(ref rng, n);
+        PackedMatrix packed = PackedMatrix.FromRowMajor(b, k, n, bias, WeightPrecision.BFloat16);
+        float[] scalar = new float[m * n];
+        K.Gemm(a, m, k, packed, scalar, n, accumulate: false, KernelVariant.Scalar);
+        float[] activated = (float[])scalar.Clone();
+        K.Activate(activated, Activation.GeluTanh);
+        foreach (KernelVariant variant in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
+        {
+            float[] c = new float[m * n];
+            K.Gemm(a, m, k, packed, c, n, accumulate: false, variant);
+            Assert.Equal(scalar, c);
+            float[] fused = new float[m * n];
+            K.Gemm(a, m, k, packed, fused, n, accumulate: false, variant, epilogue: Activation.GeluTanh);
+            Assert.Equal(activated, fused);
+        }
+    }
+
+    [Fact]
+    public void BFloat16_rounding_is_to_nearest_even()
+    {
+        // Common practice: bfloat16 keeps float32's sign, exponent and top 7 fraction bits, rounded to nearest with
+        // ties to even (IEEE 754's default rounding). RoundToBFloat16 does it in float64 arithmetic, not with bits.
+        var rng = new DeterministicRandom(23);
+        float[] values = Random(ref rng, 20000);
+        float[] edges = [0f, -0f, 1f, 1.00390625f, 1.01171875f, 1.005859375f, 3.0e38f, 1e-38f, float.Epsilon, -2.5f, 65504f];
+        foreach (float x in values.Concat(edges))
+        {
+            float widened = PackedMatrix.Widen((uint)PackedMatrix.ToBFloat16(x) << 16, upper: true);
+            Assert.Equal(RoundToBFloat16(x), widened);
+        }
+        Assert.Equal(1f, PackedMatrix.Widen((uint)PackedMatrix.ToBFloat16(1.00390625f) << 16, upper: true));        // tie, to even
+        Assert.Equal(1.015625f, PackedMatrix.Widen((uint)PackedMatrix.ToBFloat16(1.01171875f) << 16, upper: true));  // tie, to even (up)
+        Assert.True(float.IsNaN(PackedMatrix.Widen((uint)PackedMatrix.ToBFloat16(float.NaN) << 16, upper: true)));
+    }
+
+    [Fact]
+    public void BFloat16_transposed_pack_is_the_rounded_transpose()
+    {
+        var rng = new DeterministicRandom(24);
+        float[] bt = Random(ref rng, 130 * 9);
+        PackedMatrix p = PackedMatrix.FromTransposed(bt, 9, 130, WeightPrecision.BFloat16);
+        float[] col = new float[9];
+        for (int nIndex = 0; nIndex < 130; nIndex++)
+        {
+            p.CopyColumn(nIndex, col);
+            Assert.Equal(bt.AsSpan(nIndex * 9, 9).ToArray().Select(RoundToBFloat16).ToArray(), col);
+        }
+        Assert.Equal(3 * 9 * 32 * 4, p.Bytes);   // half of the 3 × 9 × 64 float32 panels
+    }
+
+    /// <summary>x rounded to 8 significant bits (bfloat16's precision), ties to even, in float64 arithmetic.</summary>
+    internal static float RoundToBFloat16(float x)
+    {
+        if (x == 0 || !float.IsFinite(x))
+        {
+            return x;
+        }
+        // bfloat16 shares float32's exponent range, subnormals included: the spacing is 2^(e − 7), at least 2^−133.
+        int e = Math.Max(Math.ILogB((double)x), -126);
+        double ulp = Math.ScaleB(1.0, e - 7);
+        return (float)(Math.Round(x / ulp, MidpointRounding.ToEven) * ulp);
     }
 
     private static void Check(KernelVariant variant, int m, int n, int k, ref DeterministicRandom rng, bool bias, bool accumulate)

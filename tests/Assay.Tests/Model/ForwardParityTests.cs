@@ -49,7 +49,7 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
         }
     }
 
-    /// <summary>Every case on every kernel path this CPU runs.</summary>
+    /// <summary>Every case on every kernel path this CPU runs; a BF16 checkpoint also held in bfloat16 (exact).</summary>
     [Theory]
     [MemberData(nameof(CaseNames))]
     public void Matches_numpy_reference(string name, KernelVariant variant)
@@ -57,7 +57,8 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
         (CheckpointSpec spec, int[] lengths) = Cases[name];
         string folder = Checkpoints.Folder(spec);
         int[][] sequences = RandomSequences(lengths, spec.Vocabulary, seed: 7);
-        Compare(folder, spec, sequences, allLogits: true, variant);
+        Compare(folder, spec, sequences, allLogits: true, variant,
+            spec.DType == "BF16" ? [WeightPrecision.Binary32, WeightPrecision.BFloat16] : [WeightPrecision.Binary32]);
     }
 
     /// <summary>The published GPT-2 small shape at full context (1024 tokens) and at lengths 7 and 1.</summary>
@@ -67,10 +68,11 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
         CheckpointSpec spec = CheckpointSpec.Gpt2Small;
         string folder = Checkpoints.Folder(spec);
         int[][] sequences = RandomSequences([1024, 7, 1], spec.Vocabulary, seed: 11);
-        Compare(folder, spec, sequences, allLogits: false, KernelSelector.Current);
+        Compare(folder, spec, sequences, allLogits: false, KernelSelector.Current, [WeightPrecision.Binary32]);
     }
 
-    private void Compare(string folder, CheckpointSpec spec, int[][] sequences, bool allLogits, KernelVariant variant)
+    private void Compare(string folder, CheckpointSpec spec, int[][] sequences, bool allLogits, KernelVariant variant,
+        WeightPrecision[] precisions)
     {
         using var temp = new TempFolder();
         string seqPath = temp.File("sequences.json");
@@ -78,7 +80,15 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
         string outDir = temp.File("out");
         PythonReference.Run("gpt2_numpy.py", [folder, seqPath, outDir, .. allLogits ? ["--all-logits"] : Array.Empty<string>()]);
 
-        LanguageModel model = LanguageModel.Open(folder);
+        foreach (WeightPrecision precision in precisions)
+        {
+            output.WriteLine($"weights {precision}");
+            CompareOutputs(LanguageModel.Open(folder, precision), spec, sequences, allLogits, variant, outDir);
+        }
+    }
+
+    private void CompareOutputs(LanguageModel model, CheckpointSpec spec, int[][] sequences, bool allLogits, KernelVariant variant, string outDir)
+    {
         int layers = spec.Layers;
         ForwardResult r = model.Forward(sequences, new ForwardOptions
         {

@@ -46,6 +46,26 @@ public sealed class TorchGoldenTests(ITestOutputHelper output)
         output.WriteLine($"logits: max |diff| {Tolerance.MaxAbsDifference(last, logits):E2}");
     }
 
+    [Fact]
+    public void A_bfloat16_checkpoint_held_in_bfloat16_matches_libtorch_with_the_same_bits_as_float32()
+    {
+        // Widening bfloat16 to float32 is exact, and the kernels do the same float32 arithmetic on either storage.
+        GoldenCase c = ReadManifest().Single(x => x.Spec.DType == "BF16");
+        string folder = Checkpoints.Folder(c.Spec);
+        var options = new ForwardOptions { HiddenLayers = [c.Spec.Layers] };
+        ForwardResult full = LanguageModel.Open(folder).Forward(c.Sequences, options);
+        LanguageModel half = LanguageModel.Open(folder, WeightPrecision.BFloat16);
+        Assert.Equal(WeightPrecision.BFloat16, half.Precision);
+        ForwardResult r = half.Forward(c.Sequences, options);
+        for (int s = 0; s < c.Sequences.Length; s++)
+        {
+            Assert.Equal(full.LastLogits(s).ToArray(), r.LastLogits(s).ToArray());
+            Assert.Equal(full.HiddenState(c.Spec.Layers, s, 0).ToArray(), r.HiddenState(c.Spec.Layers, s, 0).ToArray());
+        }
+        (double[] logits, _) = Npy.Read(Path.Combine(Root, c.Name, "logits_last.npy"));
+        Tolerance.AssertClose([.. Enumerable.Range(0, c.Sequences.Length).SelectMany(s => r.LastLogits(s).ToArray())], logits, 1e-4, 1e-4, $"{c.Name} bf16 logits");
+    }
+
     private static List<GoldenCase> ReadManifest()
     {
         string path = Path.Combine(Root, "manifest.json");
