@@ -48,7 +48,12 @@ internal static class GemmThroughput
                     }
                     double seconds = FmaPeak.Median(v == KernelVariant.Scalar ? 1 : repeats, () => Kernels.Kernels.Gemm(a, m, k, packed, c, n, false, v, parallel));
                     double gflops = 2.0 * m * k * n / seconds / 1e9;
-                    string weights = precision == WeightPrecision.BFloat16 ? "bfloat16" : "float32";
+                    string weights = precision switch
+                    {
+                        WeightPrecision.BFloat16 => "bfloat16",
+                        WeightPrecision.Integer8 => "int8",
+                        _ => "float32",
+                    };
                     o.WriteLine(string.Create(inv, $"| {m} × {k} · {k} × {n} | {what} | {weights} | {v} | {gflops:F1} | {gflops / peak:P0} |"));
                 }
             }

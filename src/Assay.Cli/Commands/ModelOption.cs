@@ -18,7 +18,7 @@ internal static class ModelOption
     /// <summary>The <c>--weights</c> option: how the model's matrices are held in memory.</summary>
     public static Option<string> CreateWeights() => new("--weights")
     {
-        Description = "Matrices in memory: float32 (the reference) or bfloat16 (half the memory; features drift, see README).",
+        Description = "Matrices in memory: float32 (the reference), bfloat16 (half the memory) or int8 (block projections in 8 bits); features drift, see README.",
         DefaultValueFactory = _ => "float32",
     };
 
@@ -26,6 +26,7 @@ internal static class ModelOption
     {
         "float32" => WeightPrecision.Binary32,
         "bfloat16" or "bf16" => WeightPrecision.BFloat16,
-        _ => throw new ArgumentException($"--weights {name}: expected float32 or bfloat16"),
+        "int8" => WeightPrecision.Integer8,
+        _ => throw new ArgumentException($"--weights {name}: expected float32, bfloat16 or int8"),
     };
 }

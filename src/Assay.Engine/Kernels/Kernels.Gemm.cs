@@ -2,6 +2,7 @@ using System.Diagnostics;
 using System.Runtime.CompilerServices;
 using System.Runtime.Intrinsics;
 using Assay.Config;
+using Assay.Model;
 
 namespace Assay.Kernels;
 
@@ -20,7 +21,7 @@ internal static unsafe partial class Kernels
     /// C = A·B + bias, or C += A·B + bias when <paramref name="accumulate"/> (a fused residual add), then the
     /// activation <paramref name="epilogue"/> applied to each finished tile while it is in cache (a fused bias + GELU).
     /// A is M × K row-major with row stride <paramref name="lda"/>; C is M × N with row stride <paramref name="ldc"/>.
-    /// B may hold float32 or bfloat16 panels; either way each output element is one float32 dot product over
+    /// B may hold float32 or bfloat16 panels (int8 goes to <see cref="GemmInt8"/>); each output element is one float32 dot product over
     /// k = 0 … K−1 in order, so results do not depend on the thread count or the kernel path.
     /// <paramref name="parallel"/> bounds the worker threads (null: all cores).
     /// </summary>
@@ -34,6 +35,11 @@ internal static unsafe partial class Kernels
         Debug.Assert(m == 0 || c.Length >= ((m - 1) * (long)ldc) + n);
         if (m == 0)
         {
+            return;
+        }
+        if (b.Precision == WeightPrecision.Integer8)
+        {
+            GemmInt8(a, m, lda, b, c, ldc, accumulate, variant, parallel, epilogue);
             return;
         }
 

@@ -1,3 +1,4 @@
+using System.Diagnostics;
 using System.Runtime.CompilerServices;
 using Assay.Model;
 
@@ -13,6 +14,11 @@ namespace Assay.Kernels;
 /// upper half and column j + 16 in its lower half, word 16 + j holds columns 32 + j and 48 + j. A kernel widens 16
 /// columns with one AND (upper halves) or one shift left by 16 (lower halves): bf16 → fp32 is exact.
 /// </para>
+/// <para>
+/// In int8 (<see cref="Quads"/>, row-major packs only) K is cut into groups of four (the last padded with zeros) and
+/// group g of panel p is 64 × 4 bytes: column j's four values q[4g … 4g+3, j] side by side, the operand layout of a
+/// 4-way byte dot product. Column n's real values are q·<see cref="Scales"/>[n]; <see cref="ColumnSums"/>[n] = Σ_k q[k, n].
+/// </para>
 /// </summary>
 internal sealed class PackedMatrix
 {
@@ -21,6 +27,9 @@ internal sealed class PackedMatrix
 
     /// <summary>32-bit words per bfloat16 panel row.</summary>
     public const int PairWidth = PanelWidth / 2;
+
+    /// <summary>Rows of K per int8 group.</summary>
+    public const int QuadDepth = 4;
 
     private PackedMatrix(int rows, int columns, float[]? data, uint[]? pairs, float[]? bias)
     {
@@ -31,11 +40,35 @@ internal sealed class PackedMatrix
         Bias = bias;
     }
 
-    /// <summary>How the panels are stored.</summary>
-    public WeightPrecision Precision => Pairs == null ? WeightPrecision.Binary32 : WeightPrecision.BFloat16;
+    private PackedMatrix(int rows, int columns, sbyte[] quads, float[] scales, int[] columnSums, float[]? bias)
+    {
+        Rows = rows;
+        Columns = columns;
+        Quads = quads;
+        Scales = scales;
+        ColumnSums = columnSums;
+        Bias = bias;
+    }
 
-    /// <summary>Bytes the panels and the bias take.</summary>
-    public long Bytes => (Data?.LongLength ?? 0) * 4 + (Pairs?.LongLength ?? 0) * 4 + (Bias?.LongLength ?? 0) * 4;
+    /// <summary>How the panels are stored.</summary>
+    public WeightPrecision Precision => Quads != null ? WeightPrecision.Integer8
+        : Pairs != null ? WeightPrecision.BFloat16 : WeightPrecision.Binary32;
+
+    /// <summary>Bytes the panels, scales and bias take.</summary>
+    public long Bytes => ((Data?.LongLength ?? 0) * 4) + ((Pairs?.LongLength ?? 0) * 4) + (Quads?.LongLength ?? 0)
+        + ((Scales?.LongLength ?? 0) * 4) + ((ColumnSums?.LongLength ?? 0) * 4) + ((Bias?.LongLength ?? 0) * 4);
+
+    /// <summary>Groups of <see cref="QuadDepth"/> rows of K, the last zero-padded.</summary>
+    public int Groups => (Rows + QuadDepth - 1) / QuadDepth;
+
+    /// <summary>The int8 panels (see the class remarks), pinned; null unless int8.</summary>
+    public sbyte[]? Quads { get; }
+
+    /// <summary>Per-column scales of the int8 panels, padded to whole panels with zeros; null unless int8.</summary>
+    public float[]? Scales { get; }
+
+    /// <summary>Per-column sums of the int8 values, padded with zeros; null unless int8.</summary>
+    public int[]? ColumnSums { get; }
 
     /// <summary>K, the shared dimension.</summary>
     public int Rows { get; }
@@ -58,17 +91,24 @@ internal sealed class PackedMatrix
     /// <summary>Packs a row-major K × N matrix (the [in, out] layout of GPT-2's projection layers).</summary>
     public static PackedMatrix FromRowMajor(ReadOnlySpan<float> b, int rows, int columns, ReadOnlySpan<float> bias = default,
         WeightPrecision precision = WeightPrecision.Binary32) =>
-        Pack(b, rows, columns, transposed: false, bias, precision);
+        precision == WeightPrecision.Integer8 ? PackQuads(b, rows, columns, bias) : Pack(b, rows, columns, transposed: false, bias, precision);
 
     /// <summary>Packs the transpose of a row-major N × K matrix (an [out, in] layout, e.g. the token embedding
     /// used as the output head: logits = h · Eᵀ).</summary>
     public static PackedMatrix FromTransposed(ReadOnlySpan<float> bt, int rows, int columns,
-        WeightPrecision precision = WeightPrecision.Binary32) =>
-        Pack(bt, rows, columns, transposed: true, default, precision);
+        WeightPrecision precision = WeightPrecision.Binary32)
+    {
+        if (precision == WeightPrecision.Integer8)
+        {
+            throw new ArgumentException("transposed packs (the embedding and head) are float32 or bfloat16", nameof(precision));
+        }
+        return Pack(bt, rows, columns, transposed: true, default, precision);
+    }
 
     /// <summary>Copies column n of B (K values; for a transposed pack, row n of the source) into destination.</summary>
     public void CopyColumn(int n, Span<float> destination)
     {
+        Debug.Assert(Quads == null, "int8 packs are never read column by column");
         int panel = n / PanelWidth, j = n % PanelWidth;
         if (Data is { } data)
         {
@@ -91,6 +131,7 @@ internal sealed class PackedMatrix
     /// <summary>Widens panel row k of panel p (64 values) to float32.</summary>
     public void CopyPanelRow(int panel, int k, Span<float> destination)
     {
+        Debug.Assert(Quads == null, "int8 packs are never read row by row");
         if (Data is { } data)
         {
             data.AsSpan((int)(((long)panel * Rows * PanelWidth) + ((long)k * PanelWidth)), PanelWidth).CopyTo(destination);
@@ -133,16 +174,7 @@ internal sealed class PackedMatrix
     private static PackedMatrix Pack(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias,
         WeightPrecision precision)
     {
-        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(rows);
-        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(columns);
-        if (source.Length != (long)rows * columns)
-        {
-            throw new ArgumentException($"source holds {source.Length} values; {rows} × {columns} needs {(long)rows * columns}", nameof(source));
-        }
-        if (!bias.IsEmpty && bias.Length != columns)
-        {
-            throw new ArgumentException($"bias holds {bias.Length} values; expected {columns}", nameof(bias));
-        }
+        Check(source, rows, columns, bias);
 
         if (precision == WeightPrecision.BFloat16)
         {
@@ -176,6 +208,20 @@ internal sealed class PackedMatrix
         return new PackedMatrix(rows, columns, data, null, PadBias(bias, panels));
     }
 
+    private static void Check(ReadOnlySpan<float> source, int rows, int columns, ReadOnlySpan<float> bias)
+    {
+        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(rows);
+        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(columns);
+        if (source.Length != (long)rows * columns)
+        {
+            throw new ArgumentException($"source holds {source.Length} values; {rows} × {columns} needs {(long)rows * columns}", nameof(source));
+        }
+        if (!bias.IsEmpty && bias.Length != columns)
+        {
+            throw new ArgumentException($"bias holds {bias.Length} values; expected {columns}", nameof(bias));
+        }
+    }
+
     private static PackedMatrix PackPairs(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias)
     {
         int panels = (columns + PanelWidth - 1) / PanelWidth;
@@ -202,6 +248,43 @@ internal sealed class PackedMatrix
         }
 
         return new PackedMatrix(rows, columns, null, pairs, PadBias(bias, panels));
+    }
+
+    /// <summary>
+    /// Symmetric per-column int8: s_n = max_k |B[k, n]| / 127 (1 for an all-zero column) and
+    /// q = round-to-even(B · (1 / s_n)), which lies in −127 … 127.
+    /// </summary>
+    private static PackedMatrix PackQuads(ReadOnlySpan<float> source, int rows, int columns, ReadOnlySpan<float> bias)
+    {
+        Check(source, rows, columns, bias);
+        int panels = (columns + PanelWidth - 1) / PanelWidth;
+        int groups = (rows + QuadDepth - 1) / QuadDepth;
+        float[] scales = GC.AllocateArray<float>(panels * PanelWidth, pinned: true);
+        float[] inverse = new float[columns];
+        int[] sums = GC.AllocateArray<int>(panels * PanelWidth, pinned: true);
+        for (int n = 0; n < columns; n++)
+        {
+            float max = 0;
+            for (int k = 0; k < rows; k++)
+            {
+                max = MathF.Max(max, MathF.Abs(source[(k * columns) + n]));
+            }
+            scales[n] = max > 0 ? max / 127f : 1f;
+            inverse[n] = 1f / scales[n];
+        }
+        sbyte[] quads = GC.AllocateArray<sbyte>(checked(panels * groups * PanelWidth * QuadDepth), pinned: true);
+        for (int k = 0; k < rows; k++)
+        {
+            int g = k / QuadDepth, kk = k % QuadDepth;
+            for (int n = 0; n < columns; n++)
+            {
+                int q = (int)Math.Clamp(MathF.Round(source[(k * columns) + n] * inverse[n]), -127f, 127f);
+                int p = n / PanelWidth, j = n % PanelWidth;
+                quads[((((long)p * groups) + g) * PanelWidth * QuadDepth) + (j * QuadDepth) + kk] = (sbyte)q;
+                sums[n] += q;
+            }
+        }
+        return new PackedMatrix(rows, columns, quads, scales, sums, PadBias(bias, panels));
     }
 
     private static float[]? PadBias(ReadOnlySpan<float> bias, int panels)

@@ -22,8 +22,9 @@ internal sealed class ModelWeights
     private const string HeadName = "lm_head.weight";
 
     private ModelWeights(PackedMatrix tokenEmbedding, float[] positionEmbedding, BlockWeights[] blocks,
-        float[] finalGain, float[] finalBias, PackedMatrix head)
+        float[] finalGain, float[] finalBias, PackedMatrix head, WeightPrecision precision)
     {
+        Precision = precision;
         TokenEmbedding = tokenEmbedding;
         PositionEmbedding = positionEmbedding;
         Blocks = blocks;
@@ -48,7 +49,7 @@ internal sealed class ModelWeights
     public PackedMatrix Head { get; }
 
     /// <summary>Storage of the packed matrices.</summary>
-    public WeightPrecision Precision => Head.Precision;
+    public WeightPrecision Precision { get; }
 
     /// <summary>Bytes every parameter takes in memory, packed (a tied head counted once).</summary>
     public long Bytes
@@ -98,13 +99,15 @@ internal sealed class ModelWeights
         string prefix = Check(checkpoint, config, configPath).NamePrefix;
         var reader = new TensorReader(checkpoint, prefix);
         int d = config.Width, m = config.InnerWidth, v = config.VocabularySize;
+        // int8 is for the block projections; the embedding (read by rows) and the head stay in bfloat16.
+        WeightPrecision tables = precision == WeightPrecision.Integer8 ? WeightPrecision.BFloat16 : precision;
 
         float[] wte = reader.Read("wte.weight");
-        PackedMatrix tokenEmbedding = PackedMatrix.FromTransposed(wte, d, v, precision);
+        PackedMatrix tokenEmbedding = PackedMatrix.FromTransposed(wte, d, v, tables);
         PackedMatrix head = tokenEmbedding;
         if (!config.TiedHead)
         {
-            head = PackedMatrix.FromTransposed(reader.ReadUnprefixed(HeadName), d, v, precision);
+            head = PackedMatrix.FromTransposed(reader.ReadUnprefixed(HeadName), d, v, tables);
         }
         else if (checkpoint.TryGetTensor(HeadName, out _))
         {
@@ -130,7 +133,7 @@ internal sealed class ModelWeights
                 PackedMatrix.FromRowMajor(reader.Read(b + "mlp.c_fc.weight"), d, m, reader.Read(b + "mlp.c_fc.bias"), precision),
                 PackedMatrix.FromRowMajor(reader.Read(b + "mlp.c_proj.weight"), m, d, reader.Read(b + "mlp.c_proj.bias"), precision));
         }
-        return new ModelWeights(tokenEmbedding, wpe, blocks, reader.Read("ln_f.weight"), reader.Read("ln_f.bias"), head);
+        return new ModelWeights(tokenEmbedding, wpe, blocks, reader.Read("ln_f.weight"), reader.Read("ln_f.bias"), head, precision);
     }
 
     /// <summary>

@@ -275,7 +275,12 @@ public static class ExtractionRun
                 ["vocabulary"] = model.Config.VocabularySize,
                 ["context"] = model.Config.ContextLength,
                 ["tokenizer"] = Path.GetFileName(model.Tokenizer.Source),
-                ["weights"] = model.Precision == WeightPrecision.BFloat16 ? "bfloat16" : "float32",
+                ["weights"] = model.Precision switch
+                {
+                    WeightPrecision.BFloat16 => "bfloat16",
+                    WeightPrecision.Integer8 => "int8",
+                    _ => "float32",
+                },
                 ["files"] = modelFiles,
             },
             ["input"] = new JsonObject

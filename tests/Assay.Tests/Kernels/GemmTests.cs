@@ -50,14 +50,17 @@ public sealed class GemmTests
         var rng = new DeterministicRandom(9);
         int m = 300, k = 200, n = 150;
         float[] a = Random(ref rng, m * k), b = Random(ref rng, k * n), bias = Random(ref rng, n);
-        PackedMatrix pb = PackedMatrix.FromRowMajor(b, k, n, bias);
-        float[] all = new float[m * n];
-        K.Gemm(a, m, k, pb, all, n, accumulate: false, variant);
-        foreach (int r in new[] { 0, 5, 157, 299 })
+        foreach (WeightPrecision precision in Enum.GetValues<WeightPrecision>())
         {
-            float[] one = new float[n];
-            K.Gemm(a.AsSpan(r * k, k), 1, k, pb, one, n, accumulate: false, variant);
-            Assert.Equal(one, all.AsSpan(r * n, n).ToArray());
+            PackedMatrix pb = PackedMatrix.FromRowMajor(b, k, n, bias, precision);
+            float[] all = new float[m * n];
+            K.Gemm(a, m, k, pb, all, n, accumulate: false, variant);
+            foreach (int r in new[] { 0, 5, 157, 299 })
+            {
+                float[] one = new float[n];
+                K.Gemm(a.AsSpan(r * k, k), 1, k, pb, one, n, accumulate: false, variant);
+                Assert.Equal(one, all.AsSpan(r * n, n).ToArray());
+            }
         }
     }
 
@@ -150,6 +153,90 @@ public sealed class GemmTests
             Assert.Equal(bt.AsSpan(nIndex * 9, 9).ToArray().Select(RoundToBFloat16).ToArray(), col);
         }
         Assert.Equal(3 * 9 * 32 * 4, p.Bytes);   // half of the 3 × 9 × 64 float32 panels
+    }
+
+    [Theory]
+    [MemberData(nameof(Variants))]
+    public void Int8_panels_give_the_product_of_the_quantized_operands(KernelVariant variant)
+    {
+        // Reference (float64): Σ_k (t_r·qa_rk)·(s_n·q_kn) + bias, with the operands quantized here in scalar code:
+        // symmetric per row of A and per column of B, largest magnitude → 127, round half to even (common practice).
+        // Then a bound against the unquantized float64 product: rounding moves each operand by at most half a step.
+        var rng = new DeterministicRandom(25);
+        foreach ((int m, int n, int k) in new[] { (1, 1, 1), (7, 63, 17), (13, 65, 64), (49, 130, 255), (6, 16, 3), (37, 257, 31), (300, 70, 768) })
+        {
+            float[] a = Random(ref rng, m * k), b = Random(ref rng, k * n), bias = Random(ref rng, n);
+            float[] c = Random(ref rng, m * n);
+            float[] c0 = (float[])c.Clone();
+            K.Gemm(a, m, k, PackedMatrix.FromRowMajor(b, k, n, bias, WeightPrecision.Integer8), c, n, accumulate: true, variant);
+            (float[] qa, float[] t) = Quantize(a, m, k, byRow: true);
+            (float[] qb, float[] s) = Quantize(b, k, n, byRow: false);
+            for (int r = 0; r < m; r++)
+            {
+                for (int j = 0; j < n; j++)
+                {
+                    double exact = 0, quantized = 0, bound = 0;
+                    for (int p = 0; p < k; p++)
+                    {
+                        double x = a[(r * k) + p], y = b[(p * n) + j];
+                        exact += x * y;
+                        quantized += (t[r] * (double)qa[(r * k) + p]) * (s[j] * (double)qb[(p * n) + j]);
+                        bound += (0.5 * t[r] * Math.Abs(y)) + (0.5 * s[j] * Math.Abs(x)) + (0.25 * t[r] * s[j]);
+                    }
+                    double actual = c[(r * n) + j] - (double)c0[(r * n) + j] - bias[j];
+                    double tol = 1e-5 * Math.Sqrt(k) * Math.Max(1, Math.Abs(quantized)) + 1e-6 * Math.Abs(c0[(r * n) + j]);
+                    Assert.True(Math.Abs(actual - quantized) <= tol, $"{variant} int8 m={m} n={n} k={k}: C[{r},{j}] − C0 − bias = {actual}, expected {quantized}");
+                    Assert.True(Math.Abs(actual - exact) <= bound + tol, $"{variant} int8 m={m} n={n} k={k}: error {Math.Abs(actual - exact)} beyond the rounding bound {bound}");
+                }
+            }
+        }
+    }
+
+    [Fact]
+    public void Int8_panels_give_the_same_bits_on_every_path_and_with_the_activation_fused()
+    {
+        var rng = new DeterministicRandom(26);
+        int m = 50, k = 97, n = 200;
+        float[] a = Random(ref rng, m * k), b = Random(ref rng, k * n), bias = Random(ref rng, n);
+        PackedMatrix packed = PackedMatrix.FromRowMajor(b, k, n, bias, WeightPrecision.Integer8);
+        Assert.Equal(WeightPrecision.Integer8, packed.Precision);
+        float[] scalar = new float[m * n];
+        K.Gemm(a, m, k, packed, scalar, n, accumulate: false, KernelVariant.Scalar);
+        float[] activated = (float[])scalar.Clone();
+        K.Activate(activated, Activation.GeluTanh);
+        foreach (KernelVariant variant in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
+        {
+            float[] c = new float[m * n];
+            K.Gemm(a, m, k, packed, c, n, accumulate: false, variant);
+            Assert.Equal(scalar, c);
+            float[] fused = new float[m * n];
+            K.Gemm(a, m, k, packed, fused, n, accumulate: false, variant, epilogue: Activation.GeluTanh);
+            Assert.Equal(activated, fused);
+        }
+        Assert.Throws<ArgumentException>(() => PackedMatrix.FromTransposed(b, k, n, WeightPrecision.Integer8));
+    }
+
+    /// <summary>Symmetric 8-bit quantization of a row-major rows × cols matrix, per row or per column (scalar code).</summary>
+    private static (float[] Values, float[] Scales) Quantize(float[] x, int rows, int cols, bool byRow)
+    {
+        int groups = byRow ? rows : cols, length = byRow ? cols : rows;
+        float[] q = new float[x.Length], scales = new float[groups];
+        for (int g = 0; g < groups; g++)
+        {
+            int At(int i) => byRow ? (g * cols) + i : (i * cols) + g;
+            float max = 0;
+            for (int i = 0; i < length; i++)
+            {
+                max = Math.Max(max, Math.Abs(x[At(i)]));
+            }
+            float scale = max > 0 ? max / 127f : 1f, inverse = 1f / scale;
+            scales[g] = scale;
+            for (int i = 0; i < length; i++)
+            {
+                q[At(i)] = Math.Clamp(MathF.Round(x[At(i)] * inverse, MidpointRounding.ToEven), -127, 127);
+            }
+        }
+        return (q, scales);
     }
 
     /// <summary>x rounded to 8 significant bits (bfloat16's precision), ties to even, in float64 arithmetic.</summary>

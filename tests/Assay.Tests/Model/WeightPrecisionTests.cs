@@ -44,6 +44,29 @@ public sealed class WeightPrecisionTests(ITestOutputHelper output)
         Assert.Equal((2 * matrices) + rest, half.WeightBytes);
     }
 
+    [Fact]
+    public void Int8_weights_drift_within_the_measured_bound_and_take_less_memory_than_bfloat16()
+    {
+        // No published bound for this model; thresholds are this fixture's measured drift with margin (see output).
+        CheckpointSpec spec = FeatureExtractorTests.Spec;
+        string folder = Checkpoints.Folder(spec);
+        LanguageModel full = LanguageModel.Open(folder);
+        LanguageModel quarter = LanguageModel.Open(folder, WeightPrecision.Integer8);
+        Assert.Equal(WeightPrecision.Integer8, quarter.Precision);
+        int[][] sequences = ForwardParityTests.RandomSequences([40, 17, 3, 1], spec.Vocabulary, seed: 31);
+        var options = new ForwardOptions { HiddenLayers = [spec.Layers] };
+        ForwardResult a = full.Forward(sequences, options), b = quarter.Forward(sequences, options);
+        double worstCosine = 1;
+        for (int s = 0; s < sequences.Length; s++)
+        {
+            int last = sequences[s].Length - 1;
+            worstCosine = Math.Min(worstCosine, Cosine(a.HiddenState(spec.Layers, s, last), b.HiddenState(spec.Layers, s, last)));
+        }
+        output.WriteLine($"int8: worst cosine {worstCosine:F7}; weights {quarter.WeightBytes:N0} bytes against {full.WeightBytes:N0}");
+        Assert.True(worstCosine >= 0.99, $"cosine {worstCosine}");
+        Assert.True(quarter.WeightBytes < LanguageModel.Open(folder, WeightPrecision.BFloat16).WeightBytes);
+    }
+
     private static double Cosine(ReadOnlySpan<float> x, ReadOnlySpan<float> y)
     {
         double xy = 0, xx = 0, yy = 0;

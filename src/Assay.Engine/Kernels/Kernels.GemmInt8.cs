@@ -1,0 +1,238 @@
+using System.Buffers;
+using System.Numerics.Tensors;
+using System.Runtime.CompilerServices;
+using System.Runtime.Intrinsics;
+using System.Runtime.Intrinsics.X86;
+using Assay.Config;
+
+namespace Assay.Kernels;
+
+internal static unsafe partial class Kernels
+{
+    /// <summary>Rows of an int8 micro-tile.</summary>
+    private const int QuadRows = 6;
+
+    /// <summary>Columns of an int8 micro-tile: two 256-bit vectors of int32 sums.</summary>
+    private const int QuadColumns = 16;
+
+    /// <summary>
+    /// Quantizes each row of A (M × K, row stride <paramref name="lda"/>) to unsigned bytes for the int8 product:
+    /// t_r = max_k |a_rk| / 127 (1 for an all-zero row) and u_rk = round-to-even(a_rk · (1 / t_r)) + 128, so that u − 128
+    /// lies in −127 … 127. Each row takes ⌈K/4⌉·4 bytes; the padding is 128 (zero).
+    /// </summary>
+    internal static void QuantizeRows(ReadOnlySpan<float> a, int m, int k, int lda, Span<byte> quantized, Span<float> scales)
+    {
+        int ldq = (k + PackedMatrix.QuadDepth - 1) / PackedMatrix.QuadDepth * PackedMatrix.QuadDepth;
+        Span<float> t = k <= 4096 ? stackalloc float[k] : new float[k];
+        for (int r = 0; r < m; r++)
+        {
+            ReadOnlySpan<float> row = a.Slice(r * lda, k);
+            float max = MathF.Abs(TensorPrimitives.MaxMagnitude(row));
+            float scale = max > 0 ? max / 127f : 1f;
+            TensorPrimitives.Multiply(row, 1f / scale, t);
+            TensorPrimitives.Round(t, t);
+            TensorPrimitives.Add(t, 128f, t);
+            Span<byte> q = quantized.Slice(r * ldq, ldq);
+            TensorPrimitives.ConvertToInteger<float, byte>(t, q[..k]);
+            q[k..].Fill(128);
+            scales[r] = scale;
+        }
+    }
+
+    /// <summary>
+    /// The int8 form of <see cref="Gemm"/>: A's rows quantized by <see cref="QuantizeRows"/>, B int8 per column, each
+    /// output the exact integer Σ_k (u_rk − 128)·q_kn (4-way byte dot products: AVX-VNNI when the CPU has it and the
+    /// path is not Scalar, else scalar integer code with the same sums), then
+    /// C = [C +] (float(sum) · s_n · t_r + bias_n) in that order. The integer sums make every path give the same bits.
+    /// </summary>
+    private static void GemmInt8(ReadOnlySpan<float> a, int m, int lda, PackedMatrix b, Span<float> c, int ldc,
+        bool accumulate, KernelVariant variant, ParallelOptions? parallel, Activation? epilogue)
+    {
+        int k = b.Rows, groups = b.Groups, ldq = groups * PackedMatrix.QuadDepth;
+        byte[] quantized = ArrayPool<byte>.Shared.Rent(m * ldq);
+        float[] rowScales = ArrayPool<float>.Shared.Rent(m);
+        try
+        {
+            int blocks = (m + 31) / 32;
+            if (blocks <= 1 || (long)m * k < ParallelThreshold)
+            {
+                QuantizeRows(a, m, k, lda, quantized, rowScales);
+            }
+            else
+            {
+                fixed (float* pa = a)
+                {
+                    float* source = pa;
+                    long length = a.Length;
+                    Parallel.For(0, blocks, parallel ?? DefaultParallelism, i =>
+                    {
+                        int r0 = i * 32, rows = Math.Min(32, m - r0);
+                        var span = new ReadOnlySpan<float>(source + ((long)r0 * lda), (int)Math.Min(length - ((long)r0 * lda), (long)rows * lda));
+                        QuantizeRows(span, rows, k, lda, quantized.AsSpan(r0 * ldq, rows * ldq), rowScales.AsSpan(r0, rows));
+                    });
+                }
+            }
+
+            int rowTiles = (m + QuadRows - 1) / QuadRows;
+            int rowTasks = (rowTiles + TilesPerTask - 1) / TilesPerTask;
+            int tasks = rowTasks * b.Panels;
+            bool vnni = variant != KernelVariant.Scalar && AvxVnni.IsSupported;
+            fixed (byte* pq = quantized)
+            fixed (float* pt = rowScales)
+            fixed (sbyte* pb = b.Quads)
+            fixed (float* ps = b.Scales)
+            fixed (int* psum = b.ColumnSums)
+            fixed (float* pbias = b.Bias)
+            fixed (float* pc = c)
+            {
+                var job = new QuadJob(pq, pt, m, ldq, pb, groups, b.Columns, ps, psum, pbias, pc, ldc, accumulate, vnni, rowTiles, epilogue);
+                if ((long)m * b.Columns * k < ParallelThreshold || tasks == 1)
+                {
+                    for (int i = 0; i < tasks; i++)
+                    {
+                        job.Run(i / rowTasks, i % rowTasks);
+                    }
+                }
+                else
+                {
+                    Parallel.For(0, tasks, parallel ?? DefaultParallelism, i => job.Run(i / rowTasks, i % rowTasks));
+                }
+            }
+        }
+        finally
+        {
+            ArrayPool<byte>.Shared.Return(quantized);
+            ArrayPool<float>.Shared.Return(rowScales);
+        }
+    }
+
+    private readonly struct QuadJob
+    {
+        private readonly byte* _a;
+        private readonly float* _rowScales, _scales, _bias, _c;
+        private readonly sbyte* _b;
+        private readonly int* _sums;
+        private readonly int _m, _ldq, _groups, _n, _ldc, _rowTiles;
+        private readonly bool _accumulate, _vnni;
+        private readonly Activation? _epilogue;
+
+        public QuadJob(byte* a, float* rowScales, int m, int ldq, sbyte* b, int groups, int n, float* scales, int* sums,
+            float* bias, float* c, int ldc, bool accumulate, bool vnni, int rowTiles, Activation? epilogue)
+        {
+            _a = a; _rowScales = rowScales; _m = m; _ldq = ldq; _b = b; _groups = groups; _n = n; _scales = scales;
+            _sums = sums; _bias = bias; _c = c; _ldc = ldc; _accumulate = accumulate; _vnni = vnni; _rowTiles = rowTiles;
+            _epilogue = epilogue;
+        }
+
+        public void Run(int panel, int rowTask)
+        {
+            const int W = PackedMatrix.PanelWidth, D = PackedMatrix.QuadDepth;
+            sbyte* panelBase = _b + ((long)panel * _groups * W * D);
+            int firstTile = rowTask * TilesPerTask;
+            int lastTile = Math.Min(_rowTiles, firstTile + TilesPerTask);
+            byte** rows = stackalloc byte*[QuadRows];
+            int* sums = stackalloc int[QuadRows * QuadColumns];
+            for (int tile = firstTile; tile < lastTile; tile++)
+            {
+                int r0 = tile * QuadRows;
+                int count = Math.Min(QuadRows, _m - r0);
+                for (int r = 0; r < QuadRows; r++)
+                {
+                    // Rows past M repeat the tile's first row; their sums are dropped.
+                    rows[r] = _a + ((long)(r0 + (r < count ? r : 0)) * _ldq);
+                }
+                for (int block = 0; block < W / QuadColumns; block++)
+                {
+                    int n0 = (panel * W) + (block * QuadColumns);
+                    if (n0 >= _n)
+                    {
+                        break;
+                    }
+                    sbyte* bp = panelBase + (block * QuadColumns * D);
+                    if (_vnni)
+                    {
+                        MicroVnni(rows, bp, _groups, sums);
+                    }
+                    else
+                    {
+                        MicroQuadScalar(rows, bp, _groups, sums);
+                    }
+                    int width = Math.Min(QuadColumns, _n - n0);
+                    for (int r = 0; r < count; r++)
+                    {
+                        float t = _rowScales[r0 + r];
+                        float* cRow = _c + ((long)(r0 + r) * _ldc) + n0;
+                        for (int j = 0; j < width; j++)
+                        {
+                            float v = sums[(r * QuadColumns) + j] - (128 * _sums[n0 + j]);
+                            v *= _scales[n0 + j];
+                            v *= t;
+                            v += _bias == null ? 0f : _bias[n0 + j];
+                            cRow[j] = _accumulate ? cRow[j] + v : v;
+                        }
+                    }
+                }
+                if (_epilogue is { } activation)
+                {
+                    int n0 = panel * W;
+                    int width = Math.Min(W, _n - n0);
+                    for (int r = 0; r < count; r++)
+                    {
+                        Activate(new Span<float>(_c + ((long)(r0 + r) * _ldc) + n0, width), activation);
+                    }
+                }
+            }
+        }
+    }
+
+    /// <summary>Integer sums of a 6 × 16 tile: u (bytes, offset by 128) times q (signed bytes), in scalar code.</summary>
+    private static void MicroQuadScalar(byte** rows, sbyte* bp, int groups, int* sums)
+    {
+        const int W = PackedMatrix.PanelWidth, D = PackedMatrix.QuadDepth;
+        for (int r = 0; r < QuadRows; r++)
+        {
+            for (int j = 0; j < QuadColumns; j++)
+            {
+                int sum = 0;
+                for (int g = 0; g < groups; g++)
+                {
+                    sbyte* q = bp + ((long)g * W * D) + (j * D);
+                    byte* u = rows[r] + (g * D);
+                    sum += (u[0] * q[0]) + (u[1] * q[1]) + (u[2] * q[2]) + (u[3] * q[3]);
+                }
+                sums[(r * QuadColumns) + j] = sum;
+            }
+        }
+    }
+
+    /// <summary>The same sums with AVX-VNNI: one vpdpbusd per row and 8 columns per group of four k (12 accumulators).</summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    private static void MicroVnni(byte** rows, sbyte* bp, int groups, int* sums)
+    {
+        const int Stride = PackedMatrix.PanelWidth * PackedMatrix.QuadDepth;
+        byte* a0 = rows[0], a1 = rows[1], a2 = rows[2], a3 = rows[3], a4 = rows[4], a5 = rows[5];
+        Vector256<int> x00 = default, x01 = default, x10 = default, x11 = default, x20 = default, x21 = default;
+        Vector256<int> x30 = default, x31 = default, x40 = default, x41 = default, x50 = default, x51 = default;
+        for (int g = 0; g < groups; g++)
+        {
+            sbyte* q = bp + ((long)g * Stride);
+            Vector256<sbyte> b0 = Vector256.Load(q), b1 = Vector256.Load(q + 32);
+            int o = g * PackedMatrix.QuadDepth;
+            Vector256<byte> v = Vector256.Create(Unsafe.ReadUnaligned<int>(a0 + o)).AsByte();
+            x00 = AvxVnni.MultiplyWideningAndAdd(x00, v, b0); x01 = AvxVnni.MultiplyWideningAndAdd(x01, v, b1);
+            v = Vector256.Create(Unsafe.ReadUnaligned<int>(a1 + o)).AsByte();
+            x10 = AvxVnni.MultiplyWideningAndAdd(x10, v, b0); x11 = AvxVnni.MultiplyWideningAndAdd(x11, v, b1);
+            v = Vector256.Create(Unsafe.ReadUnaligned<int>(a2 + o)).AsByte();
+            x20 = AvxVnni.MultiplyWideningAndAdd(x20, v, b0); x21 = AvxVnni.MultiplyWideningAndAdd(x21, v, b1);
+            v = Vector256.Create(Unsafe.ReadUnaligned<int>(a3 + o)).AsByte();
+            x30 = AvxVnni.MultiplyWideningAndAdd(x30, v, b0); x31 = AvxVnni.MultiplyWideningAndAdd(x31, v, b1);
+            v = Vector256.Create(Unsafe.ReadUnaligned<int>(a4 + o)).AsByte();
+            x40 = AvxVnni.MultiplyWideningAndAdd(x40, v, b0); x41 = AvxVnni.MultiplyWideningAndAdd(x41, v, b1);
+            v = Vector256.Create(Unsafe.ReadUnaligned<int>(a5 + o)).AsByte();
+            x50 = AvxVnni.MultiplyWideningAndAdd(x50, v, b0); x51 = AvxVnni.MultiplyWideningAndAdd(x51, v, b1);
+        }
+        x00.Store(sums); x01.Store(sums + 8); x10.Store(sums + 16); x11.Store(sums + 24);
+        x20.Store(sums + 32); x21.Store(sums + 40); x30.Store(sums + 48); x31.Store(sums + 56);
+        x40.Store(sums + 64); x41.Store(sums + 72); x50.Store(sums + 80); x51.Store(sums + 88);
+    }
+}
