@@ -1,27 +1,39 @@
 using System.Diagnostics;
 using System.Globalization;
 using System.Text.Json;
+using Assay.Cli.Commands;
+using Assay.Config;
+using Assay.Features;
 using Assay.Fixtures;
+using Assay.Model;
 
 namespace Assay.Benchmarks;
 
 /// <summary>
 /// Time and peak memory of <c>assay extract</c> at N and k·N rows, each size run several times in fresh child
 /// processes (peak RSS as the run itself records it in timing.json); medians, and the ratios k·N / N. Linear time
-/// gives a time ratio near k; memory that does not grow with the rows gives a memory ratio near 1.
+/// gives a time ratio near k; memory that does not grow with the rows gives a memory ratio near 1. Peak RSS is also
+/// set against the bytes the opened model's parameters take in memory (<see cref="LanguageModel.WeightBytes"/>) and an
+/// estimate of the forward pass's activations at the token budget.
 /// </summary>
 internal static class ExtractScaling
 {
-    public static int Run(string? model, int rows, int factor, int repeats, string features, TextWriter o)
+    public static int Run(string? model, string shape, string weights, int rows, int factor, int repeats, string features, TextWriter o)
     {
+        CheckpointSpec spec = shape switch
+        {
+            "demo" => CheckpointSpec.Demo,
+            "gpt2-small" => CheckpointSpec.Gpt2Small,
+            _ => throw new ArgumentException($"--shape {shape}: expected demo or gpt2-small"),
+        };
         string work = Path.Combine(Path.GetTempPath(), "assay-bench-" + Environment.ProcessId.ToString(CultureInfo.InvariantCulture));
         Directory.CreateDirectory(work);
         try
         {
             if (model == null)
             {
-                model = Path.Combine(work, "demo-model");
-                SyntheticCheckpoint.Write(CheckpointSpec.Demo, model);
+                model = Path.Combine(work, shape + "-model");
+                SyntheticCheckpoint.Write(spec, model);
             }
             var results = new List<(int Rows, double Seconds, double PeakMiB, double TokensPerSecond)>();
             foreach (int n in new[] { rows, rows * factor })
@@ -34,7 +46,7 @@ internal static class ExtractScaling
                 for (int r = 0; r < repeats; r++)
                 {
                     string run = Path.Combine(work, $"run-{n}-{r}");
-                    Extract(model, input, run, features);
+                    Extract(model, input, run, features, weights);
                     using var timing = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(run, "timing.json")));
                     seconds.Add(timing.RootElement.GetProperty("seconds").GetDouble());
                     peaks.Add(timing.RootElement.GetProperty("peak_rss_bytes").GetInt64() / (1024.0 * 1024.0));
@@ -44,13 +56,21 @@ internal static class ExtractScaling
                 results.Add((n, Median(seconds), Median(peaks), Median(rates)));
             }
 
+            LanguageModel opened = LanguageModel.Open(model, ModelOption.ParseWeights(weights));
+            double weightMiB = opened.WeightBytes / (1024.0 * 1024.0);
+            // The forward pass's buffers at the default token budget: residual, normed input, qkv, attention output
+            // (6·T·d floats) and the MLP's T·m, with T the budget.
+            ModelConfig c = opened.Config;
+            double activationMiB = 4.0 * new ExtractionOptions().TokenBudget * ((6.0 * c.Width) + c.InnerWidth) / (1024.0 * 1024.0);
             CultureInfo inv = CultureInfo.InvariantCulture;
-            o.WriteLine(string.Create(inv, $"assay extract, features {features}, model {model}; medians of {repeats} runs each"));
-            o.WriteLine("| rows | seconds | tokens/s | peak RSS (MiB) |");
-            o.WriteLine("|---:|---:|---:|---:|");
+            o.WriteLine(string.Create(inv, $"assay extract, features {features}, model {Path.GetFileName(model)} ({c.Layers} layers, width {c.Width}), --weights {weights}; medians of {repeats} runs each"));
+            o.WriteLine(string.Create(inv, $"parameters in memory {weightMiB:F0} MiB; forward-pass activations at the token budget ≈ {activationMiB:F0} MiB"));
+            o.WriteLine();
+            o.WriteLine("| rows | seconds | tokens/s | peak RSS (MiB) | peak RSS / (parameters + activations) |");
+            o.WriteLine("|---:|---:|---:|---:|---:|");
             foreach (var r in results)
             {
-                o.WriteLine(string.Create(inv, $"| {r.Rows:N0} | {r.Seconds:F2} | {r.TokensPerSecond:N0} | {r.PeakMiB:F0} |"));
+                o.WriteLine(string.Create(inv, $"| {r.Rows:N0} | {r.Seconds:F2} | {r.TokensPerSecond:N0} | {r.PeakMiB:F0} | {r.PeakMiB / (weightMiB + activationMiB):F2} |"));
             }
             o.WriteLine(string.Create(inv,
                 $"ratios {factor}N / N: time {results[1].Seconds / results[0].Seconds:F2} (linear: {factor}), peak memory {results[1].PeakMiB / results[0].PeakMiB:F2} (flat: 1)"));
@@ -77,10 +97,10 @@ internal static class ExtractScaling
         }
     }
 
-    private static void Extract(string model, string input, string run, string features)
+    private static void Extract(string model, string input, string run, string features, string weights)
     {
         var psi = new ProcessStartInfo("dotnet") { RedirectStandardOutput = true, RedirectStandardError = true };
-        foreach (string a in new[] { Path.Combine(AppContext.BaseDirectory, "assay.dll"), "extract", input, "--model", model, "--out", run, "--features", features, "--prompt", "{text} It is a kind of" })
+        foreach (string a in new[] { Path.Combine(AppContext.BaseDirectory, "assay.dll"), "extract", input, "--model", model, "--out", run, "--features", features, "--weights", weights, "--prompt", "{text} It is a kind of" })
         {
             psi.ArgumentList.Add(a);
         }

@@ -1,9 +1,15 @@
 using System.Globalization;
 using Assay.Benchmarks;
 
-// assay-bench extract-scaling [--model DIR] [--rows N] [--factor K] [--repeats R] [--features LIST]
+// assay-bench extract-scaling [--model DIR | --shape demo|gpt2-small] [--weights W] [--rows N] [--factor K] [--repeats R] [--features LIST]
 // assay-bench gemm [--repeats R] [--threads N]
-const string usage = "usage: assay-bench extract-scaling [--model DIR] [--rows N] [--factor K] [--repeats R] [--features LIST]\n       assay-bench gemm [--repeats R] [--threads N]";
+// assay-bench kernels [BenchmarkDotNet arguments]
+const string usage = "usage: assay-bench extract-scaling [--model DIR | --shape demo|gpt2-small] [--weights float32|bfloat16|int8] [--rows N] [--factor K] [--repeats R] [--features LIST]\n       assay-bench gemm [--repeats R] [--threads N]\n       assay-bench kernels [BenchmarkDotNet arguments, e.g. --filter *Gemm*]";
+if (args.Length > 0 && args[0] == "kernels")
+{
+    BenchmarkDotNet.Running.BenchmarkRunner.Run<KernelBenchmarks>(args: args[1..]);
+    return 0;
+}
 if (args.Length > 0 && args[0] == "gemm")
 {
     int gemmRepeats = 5, threads = Environment.ProcessorCount;
@@ -27,6 +33,7 @@ if (args.Length == 0 || args[0] != "extract-scaling")
     return 2;
 }
 string? model = null;
+string shape = "demo", weights = "float32";
 int rows = 1000, factor = 10, repeats = 3;
 string features = "hidden,cmean";
 for (int i = 1; i < args.Length; i += 2)
@@ -35,6 +42,8 @@ for (int i = 1; i < args.Length; i += 2)
     switch (args[i])
     {
         case "--model": model = value; break;
+        case "--shape": shape = value; break;
+        case "--weights": weights = value; break;
         case "--rows": rows = int.Parse(value, CultureInfo.InvariantCulture); break;
         case "--factor": factor = int.Parse(value, CultureInfo.InvariantCulture); break;
         case "--repeats": repeats = int.Parse(value, CultureInfo.InvariantCulture); break;
@@ -44,4 +53,4 @@ for (int i = 1; i < args.Length; i += 2)
             return 2;
     }
 }
-return ExtractScaling.Run(model, rows, factor, repeats, features, Console.Out);
+return ExtractScaling.Run(model, shape, weights, rows, factor, repeats, features, Console.Out);

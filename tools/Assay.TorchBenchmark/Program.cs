@@ -46,21 +46,33 @@ try
 
     // The FMA peak first: libtorch's OpenMP workers keep spinning after their work and would take cores from it.
     double peak = FmaPeak.Measure(threads);
-    LanguageModel engine = LanguageModel.Open(folder);
-    var options = new ForwardOptions { Logits = LogitPositions.Last, MaxThreads = threads };
-    float[] engineLogits = [];
-    double engineSeconds = FmaPeak.Median(repeats, () =>
+    var options = new ForwardOptions { Logits = LogitPositions.Last, HiddenLayers = [spec.Layers], MaxThreads = threads };
+    (double Seconds, float[] Logits, float[] Hidden) RunEngine(WeightPrecision precision)
     {
-        ForwardResult r = engine.Forward(sequences, options);
-        engineLogits = new float[batch * spec.Vocabulary];
-        for (int s = 0; s < batch; s++)
+        LanguageModel engine = LanguageModel.Open(folder, precision);
+        float[] logits = [], hidden = [];
+        double seconds = FmaPeak.Median(repeats, () =>
         {
-            r.Logits(s, length - 1).CopyTo(engineLogits.AsSpan(s * spec.Vocabulary, spec.Vocabulary));
-        }
-    });
+            ForwardResult r = engine.Forward(sequences, options);
+            logits = new float[batch * spec.Vocabulary];
+            hidden = new float[batch * spec.Width];
+            for (int s = 0; s < batch; s++)
+            {
+                r.Logits(s, length - 1).CopyTo(logits.AsSpan(s * spec.Vocabulary, spec.Vocabulary));
+                r.HiddenState(spec.Layers, s, length - 1).CopyTo(hidden.AsSpan(s * spec.Width, spec.Width));
+            }
+        });
+        Console.Error.WriteLine(string.Create(inv, $"engine {precision}: {seconds:F3} s; weights {engine.WeightBytes:N0} bytes"));
+        return (seconds, logits, hidden);
+    }
+    var engine32 = RunEngine(WeightPrecision.Binary32);
+    var engine16 = RunEngine(WeightPrecision.BFloat16);
+    var engine8 = RunEngine(WeightPrecision.Integer8);
+    double engineSeconds = engine32.Seconds;
+    float[] engineLogits = engine32.Logits;
 
     double torchGemm = TorchMatmul(1024, 768, 3072, repeats);
-    double torch32, torch16, maxDiff;
+    double torch32, torch16, maxDiff, torchDrift;
     using (var t32 = new TorchGpt2(spec, SyntheticCheckpoint.Parameters(spec), ScalarType.Float32))
     {
         float[] torchLogits = [];
@@ -69,7 +81,9 @@ try
     }
     using (var t16 = new TorchGpt2(spec, SyntheticCheckpoint.Parameters(spec), ScalarType.BFloat16))
     {
-        torch16 = FmaPeak.Median(repeats, () => t16.Forward(flat, batch, length));
+        float[] torchLogits16 = [];
+        torch16 = FmaPeak.Median(repeats, () => torchLogits16 = t16.Forward(flat, batch, length));
+        torchDrift = WorstCosine(engineLogits, torchLogits16, spec.Vocabulary);
     }
 
     // Multiply-adds of the pass: per token and layer 12·d² in the four projections plus the causal attention's
@@ -84,8 +98,20 @@ try
     void Row(string name, double seconds) => Console.WriteLine(string.Create(inv,
         $"| {name} | {seconds:F3} | {tokens / seconds:F0} | {flops / seconds / 1e9:F1} | {flops / seconds / 1e9 / peak:P0} | {seconds / engineSeconds:F2} |"));
     Row("engine, float32", engineSeconds);
+    Row("engine, bfloat16 weights", engine16.Seconds);
+    Row("engine, int8 projections", engine8.Seconds);
     Row("libtorch 2.10, float32", torch32);
     Row("libtorch 2.10, bfloat16", torch16);
+    Console.WriteLine();
+    Console.WriteLine(string.Create(inv, $"Engine over libtorch float32: {torch32 / engineSeconds:F2}×. Engine bfloat16 over libtorch bfloat16: {torch16 / engine16.Seconds:F2}×; engine int8 over libtorch bfloat16: {torch16 / engine8.Seconds:F2}×."));
+    Console.WriteLine();
+    Console.WriteLine("Drift against the engine's float32 pass, worst of the batch's last positions (cosine; max abs difference):");
+    Console.WriteLine();
+    Console.WriteLine("| | final hidden state | last-position logits |");
+    Console.WriteLine("|---|---|---|");
+    Console.WriteLine(string.Create(inv, $"| engine, bfloat16 weights | {WorstCosine(engine32.Hidden, engine16.Hidden, spec.Width):F6}; {MaxAbs(engine32.Hidden, engine16.Hidden):G3} | {WorstCosine(engineLogits, engine16.Logits, spec.Vocabulary):F6}; {MaxAbs(engineLogits, engine16.Logits):G3} |"));
+    Console.WriteLine(string.Create(inv, $"| engine, int8 projections | {WorstCosine(engine32.Hidden, engine8.Hidden, spec.Width):F6}; {MaxAbs(engine32.Hidden, engine8.Hidden):G3} | {WorstCosine(engineLogits, engine8.Logits, spec.Vocabulary):F6}; {MaxAbs(engineLogits, engine8.Logits):G3} |"));
+    Console.WriteLine(string.Create(inv, $"| libtorch, bfloat16 | | {torchDrift:F6} |"));
     Console.WriteLine();
     Console.WriteLine(string.Create(inv, $"FMA peak (register-only Vector512 loop, {threads} threads): {peak:F1} GFLOP/s. libtorch float32 matmul 1024 × 768 · 768 × 3072: {torchGemm:F1} GFLOP/s."));
     Console.WriteLine(string.Create(inv, $"Engine vs libtorch float32 last-position logits: max abs difference {maxDiff:G3}."));
@@ -95,6 +121,25 @@ finally
 {
     Directory.Delete(folder, recursive: true);
 }
+
+static double WorstCosine(float[] x, float[] y, int width)
+{
+    double worst = 1;
+    for (int r = 0; r < x.Length / width; r++)
+    {
+        double xy = 0, xx = 0, yy = 0;
+        for (int i = r * width; i < (r + 1) * width; i++)
+        {
+            xy += (double)x[i] * y[i];
+            xx += (double)x[i] * x[i];
+            yy += (double)y[i] * y[i];
+        }
+        worst = Math.Min(worst, xy / Math.Sqrt(xx * yy));
+    }
+    return worst;
+}
+
+static double MaxAbs(float[] x, float[] y) => x.Zip(y, (a, b) => Math.Abs((double)a - b)).Max();
 
 static double TorchMatmul(int m, int k, int n, int repeats)
 {

@@ -1,3 +1,4 @@
+using System.Buffers;
 using System.Diagnostics;
 using System.Globalization;
 using System.Numerics.Tensors;
@@ -384,10 +385,27 @@ public sealed class FeatureExtractor
         var parallel = new ForwardOptions { MaxThreads = _options.MaxThreads }.Parallelism;
         int slice = Math.Min(HeadRowsPerSlice, headRows.Count);
         float[] normed = new float[slice * d];
-        float[] logits = new float[(long)slice * v];
+        // The slice's logits (then distributions) are the largest buffer of a batch: pooled, so a long run reuses it.
+        float[] logits = ArrayPool<float>.Shared.Rent(slice * v);
         float[] cmeanOut = new float[slice * d];
         int cmeanOutput = IndexOf<ConditionalMeanFeature>();
+        try
+        {
+            HeadSlices(r, headRows, values, ids, slice, normed, logits, cmeanOut, cmeanOutput);
+        }
+        finally
+        {
+            ArrayPool<float>.Shared.Return(logits);
+        }
+    }
 
+    private void HeadSlices(ForwardResult r, List<HeadRow> headRows, float[]?[][] values, int[]?[][] ids, int slice,
+        float[] normed, float[] logits, float[] cmeanOut, int cmeanOutput)
+    {
+        int d = _model.Config.Width, v = _model.Config.VocabularySize;
+        ModelWeights weights = _model.Weights;
+        KernelVariant variant = KernelSelector.Current;
+        var parallel = new ForwardOptions { MaxThreads = _options.MaxThreads }.Parallelism;
         for (int first = 0; first < headRows.Count; first += slice)
         {
             int n = Math.Min(slice, headRows.Count - first);

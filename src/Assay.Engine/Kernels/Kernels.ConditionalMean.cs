@@ -1,3 +1,4 @@
+using System.Buffers;
 using System.Diagnostics;
 using System.Runtime.Intrinsics;
 
@@ -26,13 +27,32 @@ internal static partial class Kernels
             return;
         }
 
-        // Weight rows padded to whole panels, so the padded columns of B meet zeros.
-        float[] padded = new float[(long)rows * panels * W];
+        // Weight rows padded to whole panels, so the padded columns of B meet zeros (pooled buffers: a long run
+        // calls this once per batch).
+        float[] padded = ArrayPool<float>.Shared.Rent(rows * panels * W);
+        float[] result = ArrayPool<float>.Shared.Rent(rows * k);
+        try
+        {
+            Sum(p, rows, b, variant, parallel, padded, result);
+            result.AsSpan(0, rows * k).CopyTo(output);
+        }
+        finally
+        {
+            ArrayPool<float>.Shared.Return(padded);
+            ArrayPool<float>.Shared.Return(result);
+        }
+    }
+
+    private static void Sum(ReadOnlySpan<float> p, int rows, PackedMatrix b, KernelVariant variant, ParallelOptions? parallel,
+        float[] padded, float[] result)
+    {
+        const int W = PackedMatrix.PanelWidth;
+        int k = b.Rows, n = b.Columns, panels = b.Panels;
+        padded.AsSpan(0, rows * panels * W).Clear();
         for (int r = 0; r < rows; r++)
         {
             p.Slice(r * n, n).CopyTo(padded.AsSpan(r * panels * W, n));
         }
-        float[] result = new float[(long)rows * k];
         float[]? data = b.Data;
         int tasks = (k + ConditionalMeanRowsPerTask - 1) / ConditionalMeanRowsPerTask;
         Parallel.For(0, tasks, parallel ?? DefaultParallelism, () => new float[(rows + 1) * W], (task, _, state) =>
@@ -73,7 +93,6 @@ internal static partial class Kernels
             }
             return state;
         }, static _ => { });
-        result.CopyTo(output);
     }
 
     /// <summary>lanes[j] = fma(b[j], p[j], lanes[j]) for the 64 lanes of one panel row.</summary>

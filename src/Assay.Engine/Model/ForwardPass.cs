@@ -1,3 +1,4 @@
+using System.Buffers;
 using Assay.Config;
 using Assay.Kernels;
 using static Assay.Kernels.Kernels;
@@ -12,18 +13,38 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
 {
     public ForwardResult Run(IReadOnlyList<int[]> sequences, int[] starts, int[] lengths, int total, ForwardOptions options)
     {
-        int d = config.Width, m = config.InnerWidth, layers = config.Layers;
+        int d = config.Width, m = config.InnerWidth;
         var wanted = new HashSet<int>(options.HiddenLayers);
         var hidden = new Dictionary<int, float[]>();
 
-        float[] x = new float[(long)total * d];       // residual stream
-        float[] h = new float[(long)total * d];       // normalized input of a sublayer
-        float[] qkv = new float[(long)total * 3 * d];
-        float[] attn = new float[(long)total * d];
-        float[] mlp = new float[(long)total * m];
+        // Working buffers come from the shared pool (each is fully written before it is read), so a long run's
+        // batches reuse them instead of leaving ~40·T·d bytes of large-object garbage per pass.
+        ArrayPool<float> pool = ArrayPool<float>.Shared;
+        float[] x = pool.Rent(total * d);           // residual stream
+        float[] h = pool.Rent(total * d);           // normalized input of a sublayer
+        float[] qkv = pool.Rent(total * 3 * d);
+        float[] attn = pool.Rent(total * d);
+        float[] mlp = pool.Rent(total * m);
+        try
+        {
+            return Layers(sequences, starts, lengths, total, options, wanted, hidden, x, h, qkv, attn, mlp);
+        }
+        finally
+        {
+            pool.Return(x);
+            pool.Return(h);
+            pool.Return(qkv);
+            pool.Return(attn);
+            pool.Return(mlp);
+        }
+    }
 
+    private ForwardResult Layers(IReadOnlyList<int[]> sequences, int[] starts, int[] lengths, int total, ForwardOptions options,
+        HashSet<int> wanted, Dictionary<int, float[]> hidden, float[] x, float[] h, float[] qkv, float[] attn, float[] mlp)
+    {
+        int d = config.Width, m = config.InnerWidth, layers = config.Layers;
         Embed(sequences, starts, x);
-        Keep(0, x, wanted, hidden);
+        Keep(0, x, total * d, wanted, hidden);
 
         for (int l = 0; l < layers; l++)
         {
@@ -39,12 +60,12 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
 
             if (l + 1 < layers)
             {
-                Keep(l + 1, x, wanted, hidden);
+                Keep(l + 1, x, total * d, wanted, hidden);
             }
         }
 
         Normalize(x, h, total, weights.FinalNormGain, weights.FinalNormBias);
-        Keep(layers, h, wanted, hidden);
+        Keep(layers, h, total * d, wanted, hidden);
 
         float[] logits = Head(h, starts, lengths, total, options.Logits);
         return new ForwardResult(d, config.VocabularySize, starts, lengths, hidden, logits, options.Logits);
@@ -132,11 +153,11 @@ internal readonly struct ForwardPass(ModelWeights weights, ModelConfig config, K
         }
     }
 
-    private static void Keep(int layer, float[] state, HashSet<int> wanted, Dictionary<int, float[]> hidden)
+    private static void Keep(int layer, float[] state, int length, HashSet<int> wanted, Dictionary<int, float[]> hidden)
     {
         if (wanted.Contains(layer))
         {
-            hidden[layer] = (float[])state.Clone();
+            hidden[layer] = state.AsSpan(0, length).ToArray();
         }
     }
 }

@@ -102,18 +102,17 @@ internal sealed class ModelWeights
         // int8 is for the block projections; the embedding (read by rows) and the head stay in bfloat16.
         WeightPrecision tables = precision == WeightPrecision.Integer8 ? WeightPrecision.BFloat16 : precision;
 
-        float[] wte = reader.Read("wte.weight");
-        PackedMatrix tokenEmbedding = PackedMatrix.FromTransposed(wte, d, v, tables);
+        PackedMatrix tokenEmbedding = PackedMatrix.FromTransposed(reader.Scratch(prefix + "wte.weight"), d, v, tables);
         PackedMatrix head = tokenEmbedding;
         if (!config.TiedHead)
         {
-            head = PackedMatrix.FromTransposed(reader.ReadUnprefixed(HeadName), d, v, tables);
+            head = PackedMatrix.FromTransposed(reader.Scratch(HeadName), d, v, tables);
         }
         else if (checkpoint.TryGetTensor(HeadName, out _))
         {
-            // A tied checkpoint may store the head as well; it must then be the embedding itself.
-            float[] stored = reader.ReadUnprefixed(HeadName);
-            if (!stored.AsSpan().SequenceEqual(wte))
+            // A tied checkpoint may store the head as well; it must then be the embedding itself (compared in float32).
+            float[] wte = reader.Scratch(prefix + "wte.weight").ToArray();
+            if (!reader.Scratch(HeadName).SequenceEqual(wte))
             {
                 throw new WeightsFormatException(Source(checkpoint, HeadName), HeadName,
                     $"differs from {prefix}wte.weight, but {configPath} says the head is tied (tie_word_embeddings); set it to false to use this head");
@@ -127,13 +126,15 @@ internal sealed class ModelWeights
             string b = "h." + i.ToString(CultureInfo.InvariantCulture) + ".";
             blocks[i] = new BlockWeights(
                 reader.Read(b + "ln_1.weight"), reader.Read(b + "ln_1.bias"),
-                PackedMatrix.FromRowMajor(reader.Read(b + "attn.c_attn.weight"), d, 3 * d, reader.Read(b + "attn.c_attn.bias"), precision),
-                PackedMatrix.FromRowMajor(reader.Read(b + "attn.c_proj.weight"), d, d, reader.Read(b + "attn.c_proj.bias"), precision),
+                reader.Matrix(b + "attn.c_attn.weight", b + "attn.c_attn.bias", d, 3 * d, precision),
+                reader.Matrix(b + "attn.c_proj.weight", b + "attn.c_proj.bias", d, d, precision),
                 reader.Read(b + "ln_2.weight"), reader.Read(b + "ln_2.bias"),
-                PackedMatrix.FromRowMajor(reader.Read(b + "mlp.c_fc.weight"), d, m, reader.Read(b + "mlp.c_fc.bias"), precision),
-                PackedMatrix.FromRowMajor(reader.Read(b + "mlp.c_proj.weight"), m, d, reader.Read(b + "mlp.c_proj.bias"), precision));
+                reader.Matrix(b + "mlp.c_fc.weight", b + "mlp.c_fc.bias", d, m, precision),
+                reader.Matrix(b + "mlp.c_proj.weight", b + "mlp.c_proj.bias", m, d, precision));
         }
-        return new ModelWeights(tokenEmbedding, wpe, blocks, reader.Read("ln_f.weight"), reader.Read("ln_f.bias"), head, precision);
+        var weights = new ModelWeights(tokenEmbedding, wpe, blocks, reader.Read("ln_f.weight"), reader.Read("ln_f.bias"), head, precision);
+        reader.Release();
+        return weights;
     }
 
     /// <summary>
@@ -219,15 +220,39 @@ internal sealed class ModelWeights
     private static string Source(SafetensorsCheckpoint checkpoint, string name) =>
         checkpoint.TryGetTensor(name, out TensorInfo? t) ? t.FilePath : checkpoint.Folder;
 
-    private readonly struct TensorReader(SafetensorsCheckpoint checkpoint, string prefix)
+    /// <summary>
+    /// Converts tensors one at a time. The matrices go through one reused scratch buffer (sized for the largest
+    /// tensor) straight into their packed form, so loading leaves no float32 copies behind; each tensor's mapped file
+    /// pages are released once it is converted.
+    /// </summary>
+    private sealed class TensorReader(SafetensorsCheckpoint checkpoint, string prefix)
     {
-        public float[] Read(string name) => ReadUnprefixed(prefix + name);
+        private float[] _scratch = [];
 
-        public float[] ReadUnprefixed(string name)
+        /// <summary>
+        /// Drops the scratch buffer and returns its memory to the system now (one aggressive full collection), so the
+        /// largest tensor's float32 copy does not stay in the process's footprint for the whole run.
+        /// </summary>
+        public void Release()
+        {
+            _scratch = [];
+            GC.Collect(GC.MaxGeneration, GCCollectionMode.Aggressive, blocking: true, compacting: true);
+        }
+
+        /// <summary>A small tensor (norm gains, biases, position embeddings), as its own array.</summary>
+        public float[] Read(string name) => Scratch(prefix + name).ToArray();
+
+        /// <summary>A tensor converted into the scratch buffer: valid until the next call.</summary>
+        public ReadOnlySpan<float> Scratch(string name)
         {
             checkpoint.TryGetTensor(name, out TensorInfo? t);
-            float[] values = new float[t!.ElementCount];
+            if (_scratch.LongLength < t!.ElementCount)
+            {
+                _scratch = new float[t.ElementCount];
+            }
+            Span<float> values = _scratch.AsSpan(0, checked((int)t.ElementCount));
             checkpoint.ReadFloat32(t, values);
+            checkpoint.ReleasePages(t);
             int bad = FirstNonFinite(values);
             if (bad >= 0)
             {
@@ -235,6 +260,13 @@ internal sealed class ModelWeights
                     $"element {bad} is {values[bad].ToString(CultureInfo.InvariantCulture)}; parameters must be finite");
             }
             return values;
+        }
+
+        /// <summary>A matrix of the block, packed, with its bias.</summary>
+        public PackedMatrix Matrix(string name, string biasName, int rows, int columns, WeightPrecision precision)
+        {
+            float[] bias = Read(biasName);
+            return PackedMatrix.FromRowMajor(Scratch(prefix + name), rows, columns, bias, precision);
         }
 
         private static int FirstNonFinite(ReadOnlySpan<float> values)

@@ -92,6 +92,15 @@ public sealed class SafetensorsCheckpoint : IDisposable
         entry.File.ReadFloat32(tensor, destination);
     }
 
+    /// <summary>Lets the tensor's mapped pages go once it has been converted (see <see cref="SafetensorsFile"/>).</summary>
+    internal void ReleasePages(TensorInfo tensor)
+    {
+        if (_byName.TryGetValue(tensor.Name, out (TensorInfo Info, SafetensorsFile File) entry))
+        {
+            entry.File.ReleasePages(tensor);
+        }
+    }
+
     /// <inheritdoc />
     public void Dispose()
     {

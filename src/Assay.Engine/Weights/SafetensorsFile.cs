@@ -162,6 +162,28 @@ public sealed unsafe class SafetensorsFile : IDisposable
         }
     }
 
+    /// <summary>
+    /// Tells the kernel this process is done with the tensor's mapped pages (Linux: madvise MADV_DONTNEED on the
+    /// whole pages it spans), so a converted checkpoint does not stay resident beside its converted copy. The mapping
+    /// is read-only and file-backed: a later read faults the pages in again from the page cache. Elsewhere a no-op.
+    /// </summary>
+    internal void ReleasePages(TensorInfo tensor)
+    {
+        if (!OperatingSystem.IsLinux() || tensor.ByteLength == 0 || _view.SafeMemoryMappedViewHandle.IsClosed)
+        {
+            return;
+        }
+        long page = Environment.SystemPageSize;
+        long begin = (long)(_base + _dataStart + tensor.DataBegin);
+        long end = begin + tensor.ByteLength;
+        long first = (begin + page - 1) / page * page;   // whole pages inside the tensor only
+        long last = end / page * page;
+        if (last > first)
+        {
+            _ = NativeMethods.madvise((nint)first, (nuint)(last - first), NativeMethods.MadviseDontNeed);
+        }
+    }
+
     /// <summary>The raw bytes of a tensor (for hashing and inspection); valid while the file is open.</summary>
     internal ReadOnlySpan<byte> RawBytes(TensorInfo tensor) =>
         new(_base + _dataStart + tensor.DataBegin, checked((int)tensor.ByteLength));
@@ -347,4 +369,15 @@ public sealed unsafe class SafetensorsFile : IDisposable
                 $"tensors cover {cursor} bytes of the {dataLength}-byte data area; the rest is not indexed by any tensor");
         }
     }
+}
+
+/// <summary>The one libc call the loader makes.</summary>
+internal static class NativeMethods
+{
+    /// <summary>MADV_DONTNEED on Linux.</summary>
+    public const int MadviseDontNeed = 4;
+
+    [System.Runtime.InteropServices.DllImport("libc", SetLastError = true)]
+    [System.Runtime.InteropServices.DefaultDllImportSearchPaths(System.Runtime.InteropServices.DllImportSearchPath.SafeDirectories)]
+    public static extern int madvise(nint address, nuint length, int advice);
 }
