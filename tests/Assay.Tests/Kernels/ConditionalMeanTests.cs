@@ -35,7 +35,7 @@ public sealed class ConditionalMeanTests
                     row[i] /= sum;
                 }
             }
-            foreach (WeightPrecision precision in Enum.GetValues<WeightPrecision>())
+            foreach (WeightPrecision precision in new[] { WeightPrecision.Binary32, WeightPrecision.BFloat16 })
             {
                 // In bfloat16 the reference sums over E rounded to bfloat16 (GemmTests.RoundToBFloat16).
                 float[] stored = precision == WeightPrecision.BFloat16 ? [.. e.Select(GemmTests.RoundToBFloat16)] : e;
@@ -71,7 +71,7 @@ public sealed class ConditionalMeanTests
         var rng = new DeterministicRandom(12);
         int rows = 3, d = 40, v = 1000;
         float[] e = GemmTests.Random(ref rng, v * d), p = GemmTests.Random(ref rng, rows * v);
-        foreach (WeightPrecision precision in Enum.GetValues<WeightPrecision>())
+        foreach (WeightPrecision precision in new[] { WeightPrecision.Binary32, WeightPrecision.BFloat16 })
         {
             PackedMatrix head = PackedMatrix.FromTransposed(e, d, v, precision);
             float[] scalar = new float[rows * d];
