@@ -1,5 +1,6 @@
 using System.Diagnostics;
 using System.Runtime.CompilerServices;
+using System.Runtime.Intrinsics;
 using Assay.Model;
 
 namespace Assay.Kernels;
@@ -138,6 +139,18 @@ internal sealed class PackedMatrix
             return;
         }
         ReadOnlySpan<uint> row = Pairs.AsSpan((int)(((long)panel * Rows * PairWidth) + ((long)k * PairWidth)), PairWidth);
+        if (Vector512.IsHardwareAccelerated)
+        {
+            // Words 0–15 hold columns 0–15 (upper halves) and 16–31 (lower); words 16–31 the next 32 alike.
+            Vector512<uint> mask = Vector512.Create(0xFFFF0000u);
+            for (int half = 0; half < 2; half++)
+            {
+                Vector512<uint> w = Vector512.Create(row.Slice(16 * half, 16));
+                (w & mask).AsSingle().CopyTo(destination[(32 * half)..]);
+                Vector512.ShiftLeft(w, 16).AsSingle().CopyTo(destination[((32 * half) + 16)..]);
+            }
+            return;
+        }
         for (int j = 0; j < PanelWidth; j++)
         {
             (int word, bool upper) = PairSlot(j);

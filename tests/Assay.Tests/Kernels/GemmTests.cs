@@ -85,7 +85,7 @@ public sealed class GemmTests
         // The reference is the float64 product with B rounded to bfloat16 by RoundToBFloat16 below, so only the
         // float32 accumulation error remains, as for float32 panels.
         var rng = new DeterministicRandom(21);
-        foreach ((int m, int n, int k) in new[] { (1, 1, 1), (7, 63, 17), (13, 65, 64), (49, 130, 255), (6, 64, 2), (37, 257, 31) })
+        foreach ((int m, int n, int k) in Grid())
         {
             float[] a = Random(ref rng, m * k), b = Random(ref rng, k * n), bias = Random(ref rng, n);
             float[] c = Random(ref rng, m * n);
@@ -163,7 +163,7 @@ public sealed class GemmTests
         // symmetric per row of A and per column of B, largest magnitude → 127, round half to even (common practice).
         // Then a bound against the unquantized float64 product: rounding moves each operand by at most half a step.
         var rng = new DeterministicRandom(25);
-        foreach ((int m, int n, int k) in new[] { (1, 1, 1), (7, 63, 17), (13, 65, 64), (49, 130, 255), (6, 16, 3), (37, 257, 31), (300, 70, 768) })
+        foreach ((int m, int n, int k) in Grid().Append((300, 70, 768)))
         {
             float[] a = Random(ref rng, m * k), b = Random(ref rng, k * n), bias = Random(ref rng, n);
             float[] c = Random(ref rng, m * n);
@@ -215,6 +215,10 @@ public sealed class GemmTests
         }
         Assert.Throws<ArgumentException>(() => PackedMatrix.FromTransposed(b, k, n, WeightPrecision.Integer8));
     }
+
+    /// <summary>The sizes of <see cref="Matches_reference_on_small_and_ragged_sizes"/>: M, N in 0/1 … 257, K in 1 … 255.</summary>
+    private static IEnumerable<(int M, int N, int K)> Grid() =>
+        from m in Ms from n in Ns from k in Ks select (m, n, k);
 
     /// <summary>Symmetric 8-bit quantization of a row-major rows × cols matrix, per row or per column (scalar code).</summary>
     private static (float[] Values, float[] Scales) Quantize(float[] x, int rows, int cols, bool byRow)
