@@ -14,17 +14,11 @@ public sealed class WeightPrecisionTests(ITestOutputHelper output)
     {
         // Bound from the target: cosine ≥ 0.999 against float32. bfloat16 keeps 8 significant bits (relative
         // rounding error ≤ 2⁻⁹ per weight, common practice), so errors average out over the d-long dot products.
+        (LanguageModel full, LanguageModel half, ForwardResult a, ForwardResult b, double worstCosine) = Run(WeightPrecision.BFloat16);
         CheckpointSpec spec = FeatureExtractorTests.Spec;
-        string folder = Checkpoints.Folder(spec);
-        LanguageModel full = LanguageModel.Open(folder);
-        LanguageModel half = LanguageModel.Open(folder, WeightPrecision.BFloat16);
-        int[][] sequences = ForwardParityTests.RandomSequences([40, 17, 3, 1], spec.Vocabulary, seed: 31);
-        var options = new ForwardOptions { HiddenLayers = [spec.Layers] };
-        ForwardResult a = full.Forward(sequences, options), b = half.Forward(sequences, options);
-        double worstCosine = 1, worstTv = 0;
-        for (int s = 0; s < sequences.Length; s++)
+        double worstTv = 0;
+        for (int s = 0; s < a.SequenceCount; s++)
         {
-            worstCosine = Math.Min(worstCosine, Cosine(a.HiddenState(spec.Layers, s, sequences[s].Length - 1), b.HiddenState(spec.Layers, s, sequences[s].Length - 1)));
             float[] p = new float[spec.Vocabulary], q = new float[spec.Vocabulary];
             a.NextTokenProbabilities(s, p);
             b.NextTokenProbabilities(s, q);
@@ -48,23 +42,30 @@ public sealed class WeightPrecisionTests(ITestOutputHelper output)
     public void Int8_weights_drift_within_the_measured_bound_and_take_less_memory_than_bfloat16()
     {
         // No published bound for this model; thresholds are this fixture's measured drift with margin (see output).
+        (LanguageModel full, LanguageModel quarter, _, _, double worstCosine) = Run(WeightPrecision.Integer8);
+        Assert.Equal(WeightPrecision.Integer8, quarter.Precision);
+        output.WriteLine($"int8: worst cosine {worstCosine:F7}; weights {quarter.WeightBytes:N0} bytes against {full.WeightBytes:N0}");
+        Assert.True(worstCosine >= 0.99, $"cosine {worstCosine}");
+        Assert.True(quarter.WeightBytes < LanguageModel.Open(full.Folder, WeightPrecision.BFloat16).WeightBytes);
+    }
+
+    /// <summary>The fixture in float32 and in <paramref name="precision"/> on the same batch; the worst cosine of the
+    /// final hidden states at the sequences' last positions.</summary>
+    private static (LanguageModel Full, LanguageModel Other, ForwardResult A, ForwardResult B, double WorstCosine) Run(WeightPrecision precision)
+    {
         CheckpointSpec spec = FeatureExtractorTests.Spec;
         string folder = Checkpoints.Folder(spec);
-        LanguageModel full = LanguageModel.Open(folder);
-        LanguageModel quarter = LanguageModel.Open(folder, WeightPrecision.Integer8);
-        Assert.Equal(WeightPrecision.Integer8, quarter.Precision);
+        LanguageModel full = LanguageModel.Open(folder), other = LanguageModel.Open(folder, precision);
         int[][] sequences = ForwardParityTests.RandomSequences([40, 17, 3, 1], spec.Vocabulary, seed: 31);
         var options = new ForwardOptions { HiddenLayers = [spec.Layers] };
-        ForwardResult a = full.Forward(sequences, options), b = quarter.Forward(sequences, options);
-        double worstCosine = 1;
+        ForwardResult a = full.Forward(sequences, options), b = other.Forward(sequences, options);
+        double worst = 1;
         for (int s = 0; s < sequences.Length; s++)
         {
             int last = sequences[s].Length - 1;
-            worstCosine = Math.Min(worstCosine, Cosine(a.HiddenState(spec.Layers, s, last), b.HiddenState(spec.Layers, s, last)));
+            worst = Math.Min(worst, Cosine(a.HiddenState(spec.Layers, s, last), b.HiddenState(spec.Layers, s, last)));
         }
-        output.WriteLine($"int8: worst cosine {worstCosine:F7}; weights {quarter.WeightBytes:N0} bytes against {full.WeightBytes:N0}");
-        Assert.True(worstCosine >= 0.99, $"cosine {worstCosine}");
-        Assert.True(quarter.WeightBytes < LanguageModel.Open(folder, WeightPrecision.BFloat16).WeightBytes);
+        return (full, other, a, b, worst);
     }
 
     private static double Cosine(ReadOnlySpan<float> x, ReadOnlySpan<float> y)
