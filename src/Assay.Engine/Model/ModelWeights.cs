@@ -132,9 +132,7 @@ internal sealed class ModelWeights
                 reader.Matrix(b + "mlp.c_fc.weight", b + "mlp.c_fc.bias", d, m, precision),
                 reader.Matrix(b + "mlp.c_proj.weight", b + "mlp.c_proj.bias", m, d, precision));
         }
-        var weights = new ModelWeights(tokenEmbedding, wpe, blocks, reader.Read("ln_f.weight"), reader.Read("ln_f.bias"), head, precision);
-        reader.Release();
-        return weights;
+        return new ModelWeights(tokenEmbedding, wpe, blocks, reader.Read("ln_f.weight"), reader.Read("ln_f.bias"), head, precision);
     }
 
     /// <summary>
@@ -228,16 +226,6 @@ internal sealed class ModelWeights
     private sealed class TensorReader(SafetensorsCheckpoint checkpoint, string prefix)
     {
         private float[] _scratch = [];
-
-        /// <summary>
-        /// Drops the scratch buffer and returns its memory to the system now (one aggressive full collection), so the
-        /// largest tensor's float32 copy does not stay in the process's footprint for the whole run.
-        /// </summary>
-        public void Release()
-        {
-            _scratch = [];
-            GC.Collect(GC.MaxGeneration, GCCollectionMode.Aggressive, blocking: true, compacting: true);
-        }
 
         /// <summary>A small tensor (norm gains, biases, position embeddings), as its own array.</summary>
         public float[] Read(string name) => Scratch(prefix + name).ToArray();
