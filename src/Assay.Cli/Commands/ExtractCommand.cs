@@ -12,6 +12,9 @@ internal static class ExtractCommand
 {
     public const int Interrupted = 130;
 
+    /// <summary>The run folder could not be written (full disk, read-only or forbidden folder): EX_IOERR.</summary>
+    public const int WriteFailed = 74;
+
     public static Command Create()
     {
         var folder = ModelOption.Create();
@@ -146,6 +149,12 @@ internal static class ExtractCommand
             printer.End();
             err.WriteLine($"assay: interrupted; the rows committed so far are kept in {q.Output}. Rerun the same command with --resume to go on.");
             return Interrupted;
+        }
+        catch (Exception e) when (e is IOException or UnauthorizedAccessException && e is not FileNotFoundException and not DirectoryNotFoundException)
+        {
+            printer.End();
+            err.WriteLine($"assay: cannot write the run folder {q.Output}: {e.Message}. The rows committed so far are kept; free space or make the folder writable, then rerun the same command with --resume.");
+            return WriteFailed;
         }
         printer.End();
         PrintSummary(o, q.Output, summary);
