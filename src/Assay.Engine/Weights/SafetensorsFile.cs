@@ -21,6 +21,9 @@ public sealed unsafe class SafetensorsFile : IDisposable
     /// <summary>The highest tensor rank accepted.</summary>
     public const int MaxRank = 8;
 
+    /// <summary>The most tensors one file may declare (GPT-2 XL has 581; refused before any entry is converted).</summary>
+    public const int MaxTensors = 1 << 16;
+
     private const string MetadataKey = "__metadata__";
 
     private readonly MemoryMappedFile _map;
@@ -220,6 +223,15 @@ public sealed unsafe class SafetensorsFile : IDisposable
             {
                 throw new WeightsFormatException(path, null,
                     $"header must be a JSON object; found {doc.RootElement.ValueKind}");
+            }
+
+            int declared = 0;
+            foreach (JsonProperty _ in doc.RootElement.EnumerateObject())
+            {
+                if (++declared > MaxTensors + 1)
+                {
+                    throw new WeightsFormatException(path, null, $"header declares more than {MaxTensors} tensors, the cap; the file is damaged or not a model checkpoint");
+                }
             }
 
             var tensors = new List<TensorInfo>();

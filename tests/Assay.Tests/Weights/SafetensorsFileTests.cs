@@ -89,6 +89,13 @@ public sealed class SafetensorsFileTests : IDisposable
     }
 
     [Fact]
+    public void Refuses_more_tensors_than_the_cap_before_converting_any()
+    {
+        string entries = string.Join(", ", Enumerable.Range(0, SafetensorsFile.MaxTensors + 2).Select(i => $"\"t{i}\": {{\"dtype\": \"U8\", \"shape\": [0], \"data_offsets\": [0, 0]}}"));
+        AssertBad(SafetensorsWriter.FileFromHeaderText("{" + entries + "}", []), null, $"more than {SafetensorsFile.MaxTensors} tensors");
+    }
+
+    [Fact]
     public void Refuses_malformed_json() =>
         AssertBad(SafetensorsWriter.FileFromHeaderText("{\"w\": {\"dtype\": \"F32\",", new byte[4]), null, "not well-formed JSON");
 
