@@ -131,13 +131,7 @@ public sealed class ExtractCommandTests
     /// <summary>Runs the assay executable; with a kill point, SIGKILLs it there (if it is still running).</summary>
     private static (int ExitCode, bool Killed) RunChild(string[] args, KillPoint? killAt)
     {
-        var psi = new ProcessStartInfo("dotnet") { RedirectStandardOutput = true, RedirectStandardError = true };
-        psi.ArgumentList.Add(Path.Combine(AppContext.BaseDirectory, "assay.dll"));
-        foreach (string a in args)
-        {
-            psi.ArgumentList.Add(a);
-        }
-        using Process p = Process.Start(psi)!;
+        using Process p = StartChild(args);
         Task<string> stdout = p.StandardOutput.ReadToEndAsync();
         Task<string> stderr = p.StandardError.ReadToEndAsync();
         bool killed = false;
@@ -159,6 +153,18 @@ public sealed class ExtractCommandTests
             Assert.True(p.ExitCode == 0, $"assay {string.Join(' ', args)} exited {p.ExitCode}\n{stdout.Result}\n{stderr.Result}");
         }
         return (killed ? -1 : p.ExitCode, killed);
+    }
+
+    /// <summary>Starts the assay executable of the test's build with its output streams redirected.</summary>
+    internal static Process StartChild(string[] args)
+    {
+        var psi = new ProcessStartInfo("dotnet") { RedirectStandardOutput = true, RedirectStandardError = true };
+        psi.ArgumentList.Add(Path.Combine(AppContext.BaseDirectory, "assay.dll"));
+        foreach (string a in args)
+        {
+            psi.ArgumentList.Add(a);
+        }
+        return Process.Start(psi)!;
     }
 
     private static long CommittedRows(string progressFile)

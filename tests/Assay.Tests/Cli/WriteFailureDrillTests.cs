@@ -82,13 +82,7 @@ public sealed class WriteFailureDrillTests
 
     private static (int ExitCode, string Stderr) Child(string[] args)
     {
-        var psi = new ProcessStartInfo("dotnet") { RedirectStandardOutput = true, RedirectStandardError = true };
-        psi.ArgumentList.Add(Path.Combine(AppContext.BaseDirectory, "assay.dll"));
-        foreach (string a in args)
-        {
-            psi.ArgumentList.Add(a);
-        }
-        using Process p = Process.Start(psi)!;
+        using Process p = ExtractCommandTests.StartChild(args);
         Task<string> stdout = p.StandardOutput.ReadToEndAsync();
         string stderr = p.StandardError.ReadToEnd();
         p.WaitForExit();
