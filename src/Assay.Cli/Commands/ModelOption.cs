@@ -25,7 +25,7 @@ internal static class ModelOption
     public static WeightPrecision ParseWeights(string name) => name switch
     {
         "float32" => WeightPrecision.Binary32,
-        "bfloat16" or "bf16" => WeightPrecision.BFloat16,
+        "bfloat16" => WeightPrecision.BFloat16,
         "int8" => WeightPrecision.Integer8,
         _ => throw new ArgumentException($"--weights {name}: expected float32, bfloat16 or int8"),
     };

@@ -380,9 +380,6 @@ public sealed class FeatureExtractor
             return;
         }
         int d = _model.Config.Width, v = _model.Config.VocabularySize;
-        ModelWeights weights = _model.Weights;
-        KernelVariant variant = KernelSelector.Current;
-        var parallel = new ForwardOptions { MaxThreads = _options.MaxThreads }.Parallelism;
         int slice = Math.Min(HeadRowsPerSlice, headRows.Count);
         float[] normed = new float[slice * d];
         // The slice's logits (then distributions) are the largest buffer of a batch: pooled, so a long run reuses it.
