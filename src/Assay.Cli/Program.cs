@@ -5,6 +5,7 @@ var root = new RootCommand("assay: run GPT-2-family language models from safeten
 root.Subcommands.Add(InspectCommand.Create());
 root.Subcommands.Add(NextCommand.Create());
 root.Subcommands.Add(ExtractCommand.Create());
+root.Subcommands.Add(MergeCommand.Create());
 root.Subcommands.Add(ManifestCommand.Create());
 root.Subcommands.Add(ProbeCommand.Create());
 root.Subcommands.Add(CrossEntropyCommand.Create());

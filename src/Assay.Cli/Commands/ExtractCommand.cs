@@ -38,12 +38,13 @@ internal static class ExtractCommand
         var resume = new Option<bool>("--resume") { Description = "Continue the unfinished run in the folder." };
         var overwrite = new Option<bool>("--overwrite") { Description = "Replace a run already in the folder." };
         var strict = new Option<bool>("--strict") { Description = "Stop at the first bad record instead of writing it to rejects.csv." };
+        var shard = new Option<string>("--shard") { Description = "k/n: only shard k of n (accepted row i goes to shard i mod n + 1); merge the n folders with assay merge. Default: from SLURM_ARRAY_TASK_ID, SLURM_ARRAY_TASK_MIN and SLURM_ARRAY_TASK_COUNT in a Slurm job array; 1/1 = unsharded." };
         var progressSeconds = new Option<double>("--progress-seconds") { Description = "Seconds between progress lines when stderr is not a terminal.", DefaultValueFactory = _ => 10 };
 
         var command = new Command("extract", "Run the model over every text of an input file and write the requested features to a run folder.")
         {
             input, output, folder, prompt, features, words, completions, format, textField, idField, labelField, keep, noSpace,
-            precision, weights, budget, commit, threads, resume, overwrite, strict, progressSeconds,
+            precision, weights, budget, commit, threads, resume, overwrite, strict, shard, progressSeconds,
         };
         command.SetAction(r => CommandRunner.Run(() =>
         {
@@ -61,7 +62,8 @@ internal static class ExtractCommand
                     LabelRequired = label != null,
                 },
                 r.GetValue(keep)!, !r.GetValue(noSpace), r.GetValue(precision)!, r.GetValue(weights)!, r.GetValue(budget), r.GetValue(commit),
-                r.GetValue(threads), r.GetValue(resume), r.GetValue(overwrite), r.GetValue(strict), r.GetValue(progressSeconds));
+                r.GetValue(threads), r.GetValue(resume), r.GetValue(overwrite), r.GetValue(strict), r.GetValue(progressSeconds),
+                r.GetValue(shard));
             using var cancel = new CancellationTokenSource();
             ConsoleCancelEventHandler onCancel = (_, e) =>
             {
@@ -84,7 +86,7 @@ internal static class ExtractCommand
     internal sealed record Request(
         string Model, string Input, string Output, string Prompt, string Features, string? Words, string? Completions,
         string Format, InputFields Fields, string Keep, bool LeadingSpace, string Precision, string Weights, int TokenBudget, int CommitRows,
-        int Threads, bool Resume, bool Overwrite, bool Strict, double ProgressSeconds);
+        int Threads, bool Resume, bool Overwrite, bool Strict, double ProgressSeconds, string? Shard = null);
 
     internal static int Run(Request q, TextWriter o, TextWriter err, CancellationToken cancellationToken)
     {
@@ -115,6 +117,7 @@ internal static class ExtractCommand
             throw new FileNotFoundException($"{q.Input}: no such input file", q.Input);
         }
 
+        RunShard? shard = Shard(q.Shard, Environment.GetEnvironmentVariable, err);
         WeightPrecision weights = ModelOption.ParseWeights(q.Weights);
         LanguageModel model = LanguageModel.Open(q.Model, weights);
         var options = new RunOptions
@@ -135,6 +138,7 @@ internal static class ExtractCommand
             Overwrite = q.Overwrite,
             Strict = q.Strict,
             CommitRows = q.CommitRows,
+            Shard = shard,
         };
 
         var printer = new ProgressPrinter(err, interactive: !Console.IsErrorRedirected && ReferenceEquals(err, Console.Error),
@@ -157,8 +161,52 @@ internal static class ExtractCommand
             return WriteFailed;
         }
         printer.End();
-        PrintSummary(o, q.Output, summary);
+        PrintSummary(o, q.Output, summary, shard);
         return 0;
+    }
+
+    /// <summary>
+    /// The shard to run: --shard k/n; else, inside a Slurm job array, task (SLURM_ARRAY_TASK_ID − SLURM_ARRAY_TASK_MIN
+    /// + 1) of SLURM_ARRAY_TASK_COUNT, said on stderr; else none. n = 1 is an unsharded run.
+    /// </summary>
+    internal static RunShard? Shard(string? option, Func<string, string?> environment, TextWriter err)
+    {
+        if (option != null)
+        {
+            string[] parts = option.Split('/');
+            if (parts.Length != 2 || !int.TryParse(parts[0], NumberStyles.None, CultureInfo.InvariantCulture, out int k)
+                || !int.TryParse(parts[1], NumberStyles.None, CultureInfo.InvariantCulture, out int n) || n < 1 || k < 1 || k > n)
+            {
+                throw new ArgumentException($"--shard {option}: expected k/n with 1 ≤ k ≤ n, such as 2/8");
+            }
+            return n == 1 ? null : new RunShard(k, n);
+        }
+        string? id = environment("SLURM_ARRAY_TASK_ID"), count = environment("SLURM_ARRAY_TASK_COUNT");
+        if (id == null || count == null)
+        {
+            return null;
+        }
+        string min = environment("SLURM_ARRAY_TASK_MIN") ?? "0";
+        if (!int.TryParse(id, NumberStyles.None, CultureInfo.InvariantCulture, out int task)
+            || !int.TryParse(count, NumberStyles.None, CultureInfo.InvariantCulture, out int tasks)
+            || !int.TryParse(min, NumberStyles.None, CultureInfo.InvariantCulture, out int first))
+        {
+            throw new ArgumentException($"the Slurm array environment (SLURM_ARRAY_TASK_ID={id}, SLURM_ARRAY_TASK_MIN={min}, SLURM_ARRAY_TASK_COUNT={count}) is not numeric; pass --shard k/n");
+        }
+        int index = task - first + 1;
+        if (index < 1 || index > tasks)
+        {
+            throw new ArgumentException(string.Create(CultureInfo.InvariantCulture,
+                $"Slurm array task {task} is not one of {tasks} consecutive tasks from {first} (SLURM_ARRAY_TASK_ID, _MIN, _COUNT): give the array as a range, such as --array=0-{tasks - 1}, or pass --shard k/n"));
+        }
+        if (tasks == 1)
+        {
+            return null;
+        }
+        var shard = new RunShard(index, tasks);
+        err.WriteLine(string.Create(CultureInfo.InvariantCulture,
+            $"assay: shard {shard} from the Slurm job array (task {task}, first {first}, {tasks} tasks); pass --shard 1/1 to run unsharded"));
+        return shard;
     }
 
     /// <summary>The --format names.</summary>
@@ -172,10 +220,14 @@ internal static class ExtractCommand
         _ => throw new ArgumentException($"--format {name}: expected auto, lines, jsonl, csv or tsv"),
     };
 
-    private static void PrintSummary(TextWriter o, string folder, RunSummary s)
+    private static void PrintSummary(TextWriter o, string folder, RunSummary s, RunShard? shard)
     {
         CultureInfo inv = CultureInfo.InvariantCulture;
         o.WriteLine($"run folder  {folder}");
+        if (shard != null)
+        {
+            o.WriteLine($"shard       {shard}: accepted rows i with i mod {shard.Count} = {shard.Index - 1}{(shard.Index == 1 ? ", and every reject" : "")}; merge all {shard.Count} with assay merge");
+        }
         if (s.AlreadyComplete)
         {
             o.WriteLine("            already finished; nothing to do (pass --overwrite to run it again)");
@@ -184,7 +236,8 @@ internal static class ExtractCommand
         {
             o.WriteLine(string.Create(inv, $"resumed     after {s.ResumedAt:N0} committed rows"));
         }
-        o.WriteLine(string.Create(inv, $"records     {s.Read:N0} read = {s.Accepted:N0} accepted + {s.Rejected:N0} rejected{(s.Rejected > 0 ? $" (see {ExtractionRun.RejectsFile})" : "")}"));
+        string others = shard == null ? "" : string.Create(inv, $" + {s.Read - s.Accepted - s.Rejected:N0} left to the other shards");
+        o.WriteLine(string.Create(inv, $"records     {s.Read:N0} read = {s.Accepted:N0} accepted{others} + {s.Rejected:N0} rejected{(s.Rejected > 0 ? $" (see {ExtractionRun.RejectsFile})" : "")}"));
         o.WriteLine(string.Create(inv, $"truncated   {s.TruncatedRows:N0} rows cut to fit the context"));
         double seconds = s.Elapsed.TotalSeconds;
         o.WriteLine(string.Create(inv, $"tokens      {s.Tokens:N0} in all rows' filled templates; this session {seconds:F1} s"));

@@ -48,7 +48,8 @@ public static class ExtractionRun
 
     private static readonly JsonSerializerOptions Indented = new() { WriteIndented = true };
 
-    private static readonly CsvWriterOptions CsvOptions = new() { NewLine = "\n" };
+    /// <summary>How rows.csv and rejects.csv are written.</summary>
+    internal static readonly CsvWriterOptions CsvOptions = new() { NewLine = "\n" };
 
     /// <summary>Runs (or resumes) an extraction of <paramref name="inputPath"/> into <paramref name="outputFolder"/>.</summary>
     /// <exception cref="RunFolderException">The folder holds a finished run (and neither Resume nor Overwrite is set),
@@ -102,45 +103,60 @@ public static class ExtractionRun
             var reporter = progress == null ? null : new BatchReporter(progress, state, reader, clock);
             var tracker = new ProgressTracker(reporter);
             using IEnumerator<InputRecord> records = reader.Records().GetEnumerator();
+            RunShard? shard = options.Shard;
             bool more = true;
+            long inputRows = 0;
             for (long skip = 0; skip < state.Consumed && more; skip++)
             {
-                // Records before the last commit were counted then; reading them again only finds where to go on.
+                // Records before the last commit were counted then; reading them again only finds where to go on
+                // (and, for a shard, the input index of the next accepted row).
                 more = records.MoveNext();
+                if (more && records.Current.Accepted)
+                {
+                    inputRows++;
+                }
             }
             while (more)
             {
                 cancellationToken.ThrowIfCancellationRequested();
                 var texts = new List<string>(options.CommitRows);
                 var accepted = new List<InputRecord>(options.CommitRows);
+                var rowIndices = new List<long>(options.CommitRows);
                 var rejected = new List<InputRecord>();
+                long read = 0;
                 while (accepted.Count < options.CommitRows && (more = records.MoveNext()))
                 {
+                    read++;
                     InputRecord r = records.Current;
                     if (r.Accepted)
                     {
-                        accepted.Add(r);
-                        texts.Add(r.Text!);
+                        long row = inputRows++;
+                        if (shard == null || shard.Holds(row))
+                        {
+                            accepted.Add(r);
+                            rowIndices.Add(row);
+                            texts.Add(r.Text!);
+                        }
                     }
                     else if (options.Strict)
                     {
                         throw new TextInputException(reader.Path, r.Line, $"{r.Rejection} (stopped by --strict; without it the record goes to {RejectsFile} and the run goes on)");
                     }
-                    else
+                    else if (shard == null || shard.Index == 1)
                     {
                         rejected.Add(r);
                     }
                 }
-                if (accepted.Count == 0 && rejected.Count == 0)
+                if (read == 0)
                 {
                     break;
                 }
-                reporter?.StartGroup(accepted.Count + rejected.Count, rejected.Count);
+                reporter?.StartGroup(read, rejected.Count);
 
-                FeatureRow[] rows = extractor.ExtractGroup(texts, state.Rows, tracker, cancellationToken);
+                FeatureRow[] rows = texts.Count == 0 ? [] : extractor.ExtractGroup(texts, state.Rows, tracker, cancellationToken);
                 cancellationToken.ThrowIfCancellationRequested();
-                files.Append(rows, accepted, rejected, state.Rows);
-                state.Consumed += accepted.Count + rejected.Count;
+                files.Append(rows, accepted, rowIndices, rejected);
+                state.Consumed += read;
                 state.Rows += accepted.Count;
                 state.Rejected += rejected.Count;
                 state.TruncatedRows += rows.Count(r => r.TruncatedTokens > 0);
@@ -156,7 +172,12 @@ public static class ExtractionRun
 
             UpdateSession(session, clock.Elapsed, state.Rows - resumedAt, sessionTokens);
             files.Dispose();
-            Finish(outputFolder, state, outputs);
+            Finish(outputFolder, state, outputs, shard == null ? null : new JsonObject
+            {
+                ["index"] = shard.Index,
+                ["count"] = shard.Count,
+                ["input_rows"] = inputRows,
+            });
             return state.Summary(alreadyComplete: false, clock.Elapsed) with { ResumedAt = resumedAt };
         }
         finally
@@ -172,7 +193,7 @@ public static class ExtractionRun
         string progressPath = Path.Combine(folder, ProgressFile);
         string recordPath = Path.Combine(folder, RecordFile);
         string[] present = Directory.GetFiles(folder).Select(Path.GetFileName).ToArray()!;
-        bool ours(string name) => name is RecordFile or ProgressFile or TimingFile or RowsFile or RejectsFile
+        bool ours(string name) => name is RecordFile or ProgressFile or TimingFile or RowsFile or RejectsFile or RunMerge.MergeFile
             || name.EndsWith(".npy", StringComparison.Ordinal) || name.EndsWith(".tmp", StringComparison.Ordinal);
         string[] foreign = present.Where(n => !ours(n)).ToArray();
         if (foreign.Length > 0 || Directory.GetDirectories(folder).Length > 0)
@@ -217,7 +238,7 @@ public static class ExtractionRun
     }
 
     /// <summary>The first top-level setting whose value differs, or null when they agree.</summary>
-    private static string? FirstDifference(JsonObject stored, JsonObject current)
+    internal static string? FirstDifference(JsonObject stored, JsonObject current)
     {
         foreach (KeyValuePair<string, JsonNode?> pair in current)
         {
@@ -262,7 +283,7 @@ public static class ExtractionRun
             files.Add(new JsonObject { ["file"] = o.FileName, ["dtype"] = o.Descr, ["width"] = o.Output.Width });
         }
         string version = typeof(ExtractionRun).Assembly.GetCustomAttribute<AssemblyInformationalVersionAttribute>()?.InformationalVersion ?? "unknown";
-        return new JsonObject
+        var settings = new JsonObject
         {
             ["format_version"] = FormatVersion,
             ["engine_version"] = version,
@@ -305,33 +326,21 @@ public static class ExtractionRun
             ["outputs"] = files,
             ["strict"] = options.Strict,
         };
+        if (options.Shard is { } shard)
+        {
+            settings["shard"] = new JsonObject { ["index"] = shard.Index, ["count"] = shard.Count };
+        }
+        return settings;
     }
 
-    private static void Finish(string folder, Progress state, OutputFile[] outputs)
+    private static void Finish(string folder, Progress state, OutputFile[] outputs, JsonObject? shard)
     {
-        var shapes = new JsonArray();
-        foreach (OutputFile o in outputs)
+        JsonObject record = Record(state.Settings, new RunCounts(state.Consumed, state.Rows, state.Rejected, state.TruncatedRows, state.Tokens),
+            outputs.Select(o => (o.FileName, o.Descr, o.Output.Width)));
+        if (shard != null)
         {
-            shapes.Add(new JsonObject
-            {
-                ["file"] = o.FileName,
-                ["dtype"] = o.Descr,
-                ["shape"] = new JsonArray(state.Rows, o.Output.Width),
-            });
+            record["shard"] = shard;
         }
-        var record = new JsonObject
-        {
-            ["settings"] = state.Settings.DeepClone(),
-            ["counts"] = new JsonObject
-            {
-                ["read"] = state.Consumed,
-                ["accepted"] = state.Rows,
-                ["rejected"] = state.Rejected,
-                ["truncated_rows"] = state.TruncatedRows,
-                ["tokens"] = state.Tokens,
-            },
-            ["files"] = shapes,
-        };
         WriteAtomically(Path.Combine(folder, RecordFile), record);
 
         double seconds = state.Sessions.Sum(s => s!["seconds"]!.GetValue<double>());
@@ -345,6 +354,34 @@ public static class ExtractionRun
         };
         WriteAtomically(Path.Combine(folder, TimingFile), timing);
         File.Delete(Path.Combine(folder, ProgressFile));
+    }
+
+    /// <summary>A finished run's record.json: the settings, the counts and each file's shape.</summary>
+    internal static JsonObject Record(JsonObject settings, RunCounts counts, IEnumerable<(string File, string DType, int Width)> files)
+    {
+        var shapes = new JsonArray();
+        foreach ((string file, string dtype, int width) in files)
+        {
+            shapes.Add(new JsonObject
+            {
+                ["file"] = file,
+                ["dtype"] = dtype,
+                ["shape"] = new JsonArray(counts.Accepted, width),
+            });
+        }
+        return new JsonObject
+        {
+            ["settings"] = settings.DeepClone(),
+            ["counts"] = new JsonObject
+            {
+                ["read"] = counts.Read,
+                ["accepted"] = counts.Accepted,
+                ["rejected"] = counts.Rejected,
+                ["truncated_rows"] = counts.TruncatedRows,
+                ["tokens"] = counts.Tokens,
+            },
+            ["files"] = shapes,
+        };
     }
 
     private static void UpdateSession(JsonObject session, TimeSpan elapsed, long rows, long tokens)
@@ -363,7 +400,7 @@ public static class ExtractionRun
     private static void WriteProgress(string folder, Progress state) => WriteAtomically(Path.Combine(folder, ProgressFile), state.ToJson());
 
     /// <summary>Writes a JSON file by way of a temporary file and a rename, so a reader sees the old or the new file whole.</summary>
-    private static void WriteAtomically(string path, JsonNode node)
+    internal static void WriteAtomically(string path, JsonNode node)
     {
         string temporary = path + ".tmp";
         using (var file = new FileStream(temporary, FileMode.Create, FileAccess.Write))
@@ -447,7 +484,7 @@ public static class ExtractionRun
             }
         }
 
-        public void Append(FeatureRow[] rows, List<InputRecord> accepted, List<InputRecord> rejected, long firstRow)
+        public void Append(FeatureRow[] rows, List<InputRecord> accepted, List<long> rowIndices, List<InputRecord> rejected)
         {
             for (int o = 0; o < _outputs.Length; o++)
             {
@@ -477,7 +514,7 @@ public static class ExtractionRun
                 for (int i = 0; i < rows.Length; i++)
                 {
                     InputRecord r = accepted[i];
-                    w.WriteField(firstRow + i, default);
+                    w.WriteField(rowIndices[i], default);
                     w.WriteField(r.Line, default);
                     w.WriteField(r.Id);
                     w.WriteField(r.Label);

@@ -1,0 +1,394 @@
+using System.Globalization;
+using System.Security.Cryptography;
+using System.Text;
+using System.Text.Json;
+using System.Text.Json.Nodes;
+using CsvHelper;
+
+namespace Assay.Output;
+
+/// <summary>What a merge wrote.</summary>
+/// <param name="Shards">Shard folders merged.</param>
+/// <param name="Rows">Rows of the merged run.</param>
+/// <param name="Rejected">Rejected records (all of them in shard 1).</param>
+/// <param name="Files">Feature files written.</param>
+public sealed record MergeSummary(int Shards, long Rows, long Rejected, int Files);
+
+/// <summary>
+/// Puts the run folders of one extraction's shards (<see cref="RunOptions.Shard"/>) back together into one run folder
+/// whose .npy files, rows.csv, rejects.csv and record.json are byte-identical to those of a single run of the same
+/// extraction; <see cref="MergeFile"/> says it was merged and from which folders. Everything is checked before anything
+/// is written — the shards share every setting (model files and hashes, input file and hash, prompt, features, options),
+/// all n are present exactly once, each is finished and its files are whole — and the folder appears only complete
+/// (it is written beside the target and renamed).
+/// </summary>
+public static class RunMerge
+{
+    /// <summary>The merge's provenance: when, and from which shard folders (whose records' hashes it gives).</summary>
+    public const string MergeFile = "merge.json";
+
+    private const int RowBlockBytes = 4 << 20;
+
+    /// <summary>Merges <paramref name="shardFolders"/> (in any order) into <paramref name="outputFolder"/>.</summary>
+    /// <exception cref="RunFolderException">A shard folder is missing, unfinished, unsharded, of another extraction,
+    /// given twice or damaged; a shard is missing; or the output folder is not new or empty. Nothing is written then.</exception>
+    public static MergeSummary Merge(IReadOnlyList<string> shardFolders, string outputFolder, IProgress<long>? progress = null)
+    {
+        ArgumentNullException.ThrowIfNull(shardFolders);
+        ArgumentNullException.ThrowIfNull(outputFolder);
+        if (shardFolders.Count == 0)
+        {
+            throw new ArgumentException("no shard folders to merge", nameof(shardFolders));
+        }
+        outputFolder = Path.TrimEndingDirectorySeparator(Path.GetFullPath(outputFolder));
+        if (Directory.Exists(outputFolder) && Directory.EnumerateFileSystemEntries(outputFolder).Any())
+        {
+            throw new RunFolderException(outputFolder, "already holds files; the merge writes a new or empty folder");
+        }
+
+        ShardRun[] shards = Check(shardFolders.Select(ShardRun.Load).ToArray(), outputFolder);
+        ShardRun first = shards[0];
+        long rows = first.InputRows;
+
+        string staging = outputFolder + ".merging";
+        if (Directory.Exists(staging))
+        {
+            Directory.Delete(staging, recursive: true);
+        }
+        Directory.CreateDirectory(staging);
+        try
+        {
+            long done = 0;
+            foreach ((string file, string dtype, int width) in first.Files)
+            {
+                MergeArray(shards, file, dtype, width, rows, Path.Combine(staging, file), progress, done);
+                done += rows;
+            }
+            MergeRowTable(shards, rows, Path.Combine(staging, ExtractionRun.RowsFile));
+            File.Copy(Path.Combine(first.Folder, ExtractionRun.RejectsFile), Path.Combine(staging, ExtractionRun.RejectsFile));
+
+            var counts = new RunCounts(first.Read, rows, first.Rejected, shards.Sum(s => s.TruncatedRows), shards.Sum(s => s.Tokens));
+            ExtractionRun.WriteAtomically(Path.Combine(staging, ExtractionRun.RecordFile), ExtractionRun.Record(first.Settings, counts, first.Files));
+            ExtractionRun.WriteAtomically(Path.Combine(staging, MergeFile), Provenance(shards));
+
+            if (Directory.Exists(outputFolder))
+            {
+                Directory.Delete(outputFolder);
+            }
+            Directory.Move(staging, outputFolder);
+        }
+        catch
+        {
+            Directory.Delete(staging, recursive: true);
+            throw;
+        }
+        return new MergeSummary(shards.Length, rows, first.Rejected, first.Files.Length);
+    }
+
+    /// <summary>The shards, in shard order, once they are known to belong together and to be complete.</summary>
+    private static ShardRun[] Check(ShardRun[] given, string outputFolder)
+    {
+        ShardRun first = given[0];
+        int count = first.Count;
+        var byIndex = new ShardRun?[count];
+        foreach (ShardRun s in given)
+        {
+            if (s.Count != count)
+            {
+                throw new RunFolderException(s.Folder, $"is shard {s.Index}/{s.Count}, but {first.Folder} is one of {count} shards: they are not shards of one extraction");
+            }
+            string? difference = ExtractionRun.FirstDifference(first.Settings, s.Settings);
+            if (difference != null)
+            {
+                throw new RunFolderException(s.Folder, $"was made with a different {difference} than {first.Folder}: shards of one extraction share the model, input, prompt, features and options");
+            }
+            if (byIndex[s.Index - 1] is { } other)
+            {
+                throw new RunFolderException(s.Folder, $"holds shard {s.Index}/{count}, and so does {other.Folder}: give each shard once");
+            }
+            byIndex[s.Index - 1] = s;
+        }
+        int[] missing = Enumerable.Range(1, count).Where(k => byIndex[k - 1] == null).ToArray();
+        if (missing.Length > 0)
+        {
+            throw new RunFolderException(outputFolder, $"cannot merge: shard{(missing.Length > 1 ? "s" : "")} {string.Join(", ", missing.Select(k => $"{k}/{count}"))} missing; give the folders of all {count} shards");
+        }
+
+        ShardRun[] shards = byIndex!;
+        foreach (ShardRun s in shards)
+        {
+            var shard = new RunShard(s.Index, count);
+            if (s.InputRows != first.InputRows || s.Read != first.Read)
+            {
+                throw new RunFolderException(s.Folder, string.Create(CultureInfo.InvariantCulture,
+                    $"read {s.Read} records with {s.InputRows} accepted, but {first.Folder} read {first.Read} with {first.InputRows}: the shard folders were changed"));
+            }
+            if (s.Accepted != shard.RowsOf(s.InputRows) || (s.Index > 1 && s.Rejected != 0))
+            {
+                throw new RunFolderException(s.Folder, string.Create(CultureInfo.InvariantCulture,
+                    $"holds {s.Accepted} rows and {s.Rejected} rejects; shard {shard} of {s.InputRows} accepted rows holds {shard.RowsOf(s.InputRows)} rows{(s.Index > 1 ? " and no rejects" : "")}"));
+            }
+            foreach ((string file, string dtype, int width) in s.Files)
+            {
+                string path = Path.Combine(s.Folder, file);
+                long expected = NpyAppender.HeaderBytes + (s.Accepted * width * ElementBytes(path, dtype));
+                long actual = File.Exists(path) ? new FileInfo(path).Length : -1;
+                if (actual != expected)
+                {
+                    throw new RunFolderException(s.Folder, string.Create(CultureInfo.InvariantCulture,
+                        $"{file} is {(actual < 0 ? "missing" : $"{actual} bytes")}; its record says {s.Accepted} rows of {width} {dtype}, {expected} bytes: the shard folder was changed"));
+                }
+            }
+            foreach (string table in new[] { ExtractionRun.RowsFile, ExtractionRun.RejectsFile })
+            {
+                if (!File.Exists(Path.Combine(s.Folder, table)))
+                {
+                    throw new RunFolderException(s.Folder, $"{table} is missing: the shard folder was changed");
+                }
+            }
+        }
+        return shards;
+    }
+
+    private static int ElementBytes(string path, string dtype) => dtype switch
+    {
+        "<f4" or "<i4" => 4,
+        "<f2" => 2,
+        _ => throw new RunFolderException(Path.GetDirectoryName(path)!, $"{Path.GetFileName(path)} has dtype '{dtype}' in its record; expected <f4, <f2 or <i4"),
+    };
+
+    /// <summary>Row i of the merged array is row i div n of shard (i mod n) + 1.</summary>
+    private static void MergeArray(ShardRun[] shards, string file, string dtype, int width, long rows, string target,
+        IProgress<long>? progress, long before)
+    {
+        int rowBytes = width * ElementBytes(target, dtype);
+        var sources = new FileStream[shards.Length];
+        try
+        {
+            for (int s = 0; s < shards.Length; s++)
+            {
+                sources[s] = new FileStream(Path.Combine(shards[s].Folder, file), FileMode.Open, FileAccess.Read, FileShare.Read, 1 << 20, FileOptions.SequentialScan);
+                sources[s].Seek(NpyAppender.HeaderBytes, SeekOrigin.Begin);
+            }
+            using NpyAppender merged = NpyAppender.Create(target, dtype, width, rowBytes / width);
+            int blockRows = Math.Max(1, RowBlockBytes / Math.Max(1, rowBytes));
+            byte[] block = new byte[(long)blockRows * rowBytes];
+            for (long start = 0; start < rows; start += blockRows)
+            {
+                int n = (int)Math.Min(blockRows, rows - start);
+                for (int i = 0; i < n; i++)
+                {
+                    sources[(start + i) % shards.Length].ReadExactly(block, i * rowBytes, rowBytes);
+                }
+                merged.Append(block.AsSpan(0, n * rowBytes));
+                progress?.Report(before + start + n);
+            }
+            merged.Commit(rows);
+        }
+        finally
+        {
+            foreach (FileStream? f in sources)
+            {
+                f?.Dispose();
+            }
+        }
+    }
+
+    /// <summary>Interleaves the shards' rows.csv records as they are written (raw bytes), checking each row number.</summary>
+    private static void MergeRowTable(ShardRun[] shards, long rows, string target)
+    {
+        var readers = new CsvReader[shards.Length];
+        var streams = new FileStream[shards.Length];
+        try
+        {
+            byte[]? header = null;
+            for (int s = 0; s < shards.Length; s++)
+            {
+                string path = Path.Combine(shards[s].Folder, ExtractionRun.RowsFile);
+                streams[s] = File.OpenRead(path);
+                byte[] h = HeaderLine(streams[s]);
+                readers[s] = CsvReader.Create(streams[s], new CsvReaderOptions { HasHeader = false, MaxRecordSize = 4 << 20 }, leaveOpen: true);
+                if (header != null && !header.AsSpan().SequenceEqual(h))
+                {
+                    throw new RunFolderException(shards[s].Folder, $"{ExtractionRun.RowsFile} has another header than {shards[0].Folder}'s");
+                }
+                header = h;
+            }
+            using var output = new BufferedStream(new FileStream(target, FileMode.CreateNew, FileAccess.Write), 1 << 20);
+            output.Write(header);
+            string expected;
+            for (long i = 0; i < rows; i++)
+            {
+                int s = (int)(i % shards.Length);
+                CsvReader r = readers[s];
+                expected = i.ToString(CultureInfo.InvariantCulture);
+                if (!r.Read() || r.GetString(0) != expected)
+                {
+                    throw new RunFolderException(shards[s].Folder, $"{ExtractionRun.RowsFile} does not list row {expected} where shard {s + 1}/{shards.Length} must: the shard folder was changed");
+                }
+                output.Write(r.RawRecord);
+                output.WriteByte((byte)'\n');
+            }
+            for (int s = 0; s < shards.Length; s++)
+            {
+                if (readers[s].Read())
+                {
+                    throw new RunFolderException(shards[s].Folder, $"{ExtractionRun.RowsFile} has more rows than its record: the shard folder was changed");
+                }
+            }
+        }
+        finally
+        {
+            foreach (CsvReader? r in readers)
+            {
+                r?.Dispose();
+            }
+            foreach (FileStream? f in streams)
+            {
+                f?.Dispose();
+            }
+        }
+    }
+
+    /// <summary>The table's first line, with its line break (the header: plain column names, never quoted).</summary>
+    private static byte[] HeaderLine(FileStream file)
+    {
+        var line = new List<byte>(64);
+        int b;
+        while ((b = file.ReadByte()) >= 0)
+        {
+            line.Add((byte)b);
+            if (b == '\n')
+            {
+                break;
+            }
+        }
+        return [.. line];
+    }
+
+    private static JsonObject Provenance(ShardRun[] shards)
+    {
+        var list = new JsonArray();
+        foreach (ShardRun s in shards)
+        {
+            list.Add(new JsonObject
+            {
+                ["shard"] = $"{s.Index}/{s.Count}",
+                ["folder"] = s.Folder,
+                ["rows"] = s.Accepted,
+                ["record_sha256"] = s.RecordSha256,
+                ["seconds"] = s.Seconds,
+            });
+        }
+        return new JsonObject
+        {
+            ["merged_at"] = DateTimeOffset.UtcNow.ToString("yyyy-MM-ddTHH:mm:ss.fffZ", CultureInfo.InvariantCulture),
+            ["shards"] = list,
+        };
+    }
+
+    /// <summary>A finished shard's folder and record.</summary>
+    private sealed class ShardRun
+    {
+        public required string Folder { get; init; }
+
+        /// <summary>The settings without the shard entry: what all shards of one extraction share.</summary>
+        public required JsonObject Settings { get; init; }
+
+        public required int Index { get; init; }
+
+        public required int Count { get; init; }
+
+        public required long InputRows { get; init; }
+
+        public required long Read { get; init; }
+
+        public required long Accepted { get; init; }
+
+        public required long Rejected { get; init; }
+
+        public required long TruncatedRows { get; init; }
+
+        public required long Tokens { get; init; }
+
+        public required (string File, string DType, int Width)[] Files { get; init; }
+
+        public required string RecordSha256 { get; init; }
+
+        public double? Seconds { get; init; }
+
+        public static ShardRun Load(string folder)
+        {
+            folder = Path.TrimEndingDirectorySeparator(Path.GetFullPath(folder));
+            if (!Directory.Exists(folder))
+            {
+                throw new RunFolderException(folder, "no such shard folder");
+            }
+            if (File.Exists(Path.Combine(folder, ExtractionRun.ProgressFile)))
+            {
+                throw new RunFolderException(folder, $"holds an unfinished shard ({ExtractionRun.ProgressFile} is there); finish it by rerunning its assay extract command with --resume, then merge");
+            }
+            string recordPath = Path.Combine(folder, ExtractionRun.RecordFile);
+            if (!File.Exists(recordPath))
+            {
+                throw new RunFolderException(folder, $"holds no finished run (no {ExtractionRun.RecordFile})");
+            }
+            byte[] bytes = File.ReadAllBytes(recordPath);
+            try
+            {
+                var record = (JsonObject)JsonNode.Parse(bytes)!;
+                var settings = (JsonObject)record["settings"]!.DeepClone();
+                if (settings["shard"] is null || record["shard"] is not JsonObject shard)
+                {
+                    throw new RunFolderException(folder, "holds an unsharded run; only the folders of assay extract --shard k/n runs are merged");
+                }
+                settings.Remove("shard");
+                JsonNode counts = record["counts"]!;
+                int index = shard["index"]!.GetValue<int>(), count = shard["count"]!.GetValue<int>();
+                if (count < 2 || index < 1 || index > count)
+                {
+                    throw new RunFolderException(folder, string.Create(CultureInfo.InvariantCulture, $"{ExtractionRun.RecordFile} names shard {index}/{count}, which cannot be"));
+                }
+                return new ShardRun
+                {
+                    Folder = folder,
+                    Settings = settings,
+                    Index = index,
+                    Count = count,
+                    InputRows = shard["input_rows"]!.GetValue<long>(),
+                    Read = counts["read"]!.GetValue<long>(),
+                    Accepted = counts["accepted"]!.GetValue<long>(),
+                    Rejected = counts["rejected"]!.GetValue<long>(),
+                    TruncatedRows = counts["truncated_rows"]!.GetValue<long>(),
+                    Tokens = counts["tokens"]!.GetValue<long>(),
+                    Files = record["files"]!.AsArray()
+                        .Select(f => (f!["file"]!.GetValue<string>(), f["dtype"]!.GetValue<string>(), f["shape"]![1]!.GetValue<int>()))
+                        .ToArray(),
+                    RecordSha256 = Convert.ToHexStringLower(SHA256.HashData(bytes)),
+                    Seconds = ReadSeconds(Path.Combine(folder, ExtractionRun.TimingFile)),
+                };
+            }
+            catch (Exception e) when (e is JsonException or InvalidCastException or InvalidOperationException or NullReferenceException
+                or FormatException or IndexOutOfRangeException or ArgumentOutOfRangeException)
+            {
+                throw new RunFolderException(folder, $"{ExtractionRun.RecordFile} is unreadable ({e.Message})");
+            }
+        }
+
+        private static double? ReadSeconds(string timingPath)
+        {
+            if (!File.Exists(timingPath))
+            {
+                return null;
+            }
+            try
+            {
+                return JsonNode.Parse(File.ReadAllBytes(timingPath))?["seconds"]?.GetValue<double>();
+            }
+            catch (Exception e) when (e is JsonException or InvalidOperationException or FormatException)
+            {
+                return null;
+            }
+        }
+    }
+}
