@@ -7,6 +7,8 @@
 # --seconds S  fuzz each target for S seconds (default 10: the short run CI does)
 # --execs N    fuzz each target for about N executions instead (the long run: --execs 1000000)
 # --jobs J     targets fuzzed at once (default 1; one core each)
+# --save-corpus  afterwards, add the inputs AFL++ found new coverage with (up to 8 KiB each) to the corpus, named by
+#              their SHA-256, so FuzzCorpusTests replays them in every test run
 # TARGET       safetensors index config vocab merges tokenizer-json lines jsonl csv tsv (default: all)
 #
 # Findings go to out/fuzz/TARGET/default/{crashes,hangs}; replay one with
@@ -15,12 +17,13 @@
 # Exit status: 0 when no target saved a crash or a hang, 1 otherwise, 2 when the fuzzer could not run.
 set -euo pipefail
 root=$(cd "$(dirname "$0")/.." && pwd)
-seconds=10 execs="" jobs=1 targets=()
+seconds=10 execs="" jobs=1 save=0 targets=()
 while [ $# -gt 0 ]; do
   case "$1" in
     --seconds) seconds=$2; shift 2 ;;
     --execs) execs=$2; shift 2 ;;
     --jobs) jobs=$2; shift 2 ;;
+    --save-corpus) save=1; shift ;;
     -*) echo "fuzz.sh: unknown option $1" >&2; exit 2 ;;
     *) targets+=("$1"); shift ;;
   esac
@@ -71,4 +74,16 @@ for t in "${targets[@]}"; do
     ls "$out/$t/default/crashes" "$out/$t/default/hangs" 2>/dev/null | grep -v README | sed "s|^|  |"
   fi
 done
+if [ "$save" = 1 ]; then
+  for t in "${targets[@]}"; do
+    added=0
+    for f in "$out/$t/default/queue"/id:*; do
+      case "$f" in *orig:*) continue ;; esac   # the seeds themselves
+      [ "$(stat -c %s "$f")" -le 8192 ] || continue
+      name="found-$(sha256sum "$f" | cut -c1-16)"
+      [ -e "$root/tools/Assay.Fuzz/corpus/$t/$name" ] || { cp "$f" "$root/tools/Assay.Fuzz/corpus/$t/$name"; added=$((added + 1)); }
+    done
+    echo "$t: $added inputs added to tools/Assay.Fuzz/corpus/$t"
+  done
+fi
 exit "$status"
