@@ -48,8 +48,7 @@ public static class ExtractionRun
 
     private static readonly JsonSerializerOptions Indented = new() { WriteIndented = true };
 
-    /// <summary>How rows.csv and rejects.csv are written.</summary>
-    internal static readonly CsvWriterOptions CsvOptions = new() { NewLine = "\n" };
+    private static readonly CsvWriterOptions CsvOptions = new() { NewLine = "\n" };
 
     /// <summary>Runs (or resumes) an extraction of <paramref name="inputPath"/> into <paramref name="outputFolder"/>.</summary>
     /// <exception cref="RunFolderException">The folder holds a finished run (and neither Resume nor Overwrite is set),

@@ -216,12 +216,11 @@ public static class RunMerge
             }
             using var output = new BufferedStream(new FileStream(target, FileMode.CreateNew, FileAccess.Write), 1 << 20);
             output.Write(header);
-            string expected;
             for (long i = 0; i < rows; i++)
             {
                 int s = (int)(i % shards.Length);
                 CsvReader r = readers[s];
-                expected = i.ToString(CultureInfo.InvariantCulture);
+                string expected = i.ToString(CultureInfo.InvariantCulture);
                 if (!r.Read() || r.GetString(0) != expected)
                 {
                     throw new RunFolderException(shards[s].Folder, $"{ExtractionRun.RowsFile} does not list row {expected} where shard {s + 1}/{shards.Length} must: the shard folder was changed");
