@@ -659,15 +659,15 @@ public static class ExtractionRun
 
         public static Progress FromRecord(JsonObject record)
         {
-            JsonNode counts = record["counts"]!;
+            RunCounts counts = RunCounts.FromRecord(record["counts"]!);
             return new Progress
             {
                 Settings = (JsonObject)record["settings"]!.DeepClone(),
-                Consumed = counts["read"]!.GetValue<long>(),
-                Rows = counts["accepted"]!.GetValue<long>(),
-                Rejected = counts["rejected"]!.GetValue<long>(),
-                TruncatedRows = counts["truncated_rows"]!.GetValue<long>(),
-                Tokens = counts["tokens"]!.GetValue<long>(),
+                Consumed = counts.Read,
+                Rows = counts.Accepted,
+                Rejected = counts.Rejected,
+                TruncatedRows = counts.TruncatedRows,
+                Tokens = counts.Tokens,
                 Complete = true,
             };
         }

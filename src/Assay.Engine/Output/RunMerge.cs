@@ -67,7 +67,7 @@ public static class RunMerge
             MergeRowTable(shards, rows, Path.Combine(staging, ExtractionRun.RowsFile));
             File.Copy(Path.Combine(first.Folder, ExtractionRun.RejectsFile), Path.Combine(staging, ExtractionRun.RejectsFile));
 
-            var counts = new RunCounts(first.Read, rows, first.Rejected, shards.Sum(s => s.TruncatedRows), shards.Sum(s => s.Tokens));
+            var counts = new RunCounts(first.Read, rows, first.Rejected, shards.Sum(s => s.Counts.TruncatedRows), shards.Sum(s => s.Counts.Tokens));
             ExtractionRun.WriteAtomically(Path.Combine(staging, ExtractionRun.RecordFile), ExtractionRun.Record(first.Settings, counts, first.Files));
             ExtractionRun.WriteAtomically(Path.Combine(staging, MergeFile), Provenance(shards));
 
@@ -300,15 +300,13 @@ public static class RunMerge
 
         public required long InputRows { get; init; }
 
-        public required long Read { get; init; }
+        public required RunCounts Counts { get; init; }
 
-        public required long Accepted { get; init; }
+        public long Read => Counts.Read;
 
-        public required long Rejected { get; init; }
+        public long Accepted => Counts.Accepted;
 
-        public required long TruncatedRows { get; init; }
-
-        public required long Tokens { get; init; }
+        public long Rejected => Counts.Rejected;
 
         public required (string File, string DType, int Width)[] Files { get; init; }
 
@@ -342,7 +340,6 @@ public static class RunMerge
                     throw new RunFolderException(folder, "holds an unsharded run; only the folders of assay extract --shard k/n runs are merged");
                 }
                 settings.Remove("shard");
-                JsonNode counts = record["counts"]!;
                 int index = shard["index"]!.GetValue<int>(), count = shard["count"]!.GetValue<int>();
                 if (count < 2 || index < 1 || index > count)
                 {
@@ -355,11 +352,7 @@ public static class RunMerge
                     Index = index,
                     Count = count,
                     InputRows = shard["input_rows"]!.GetValue<long>(),
-                    Read = counts["read"]!.GetValue<long>(),
-                    Accepted = counts["accepted"]!.GetValue<long>(),
-                    Rejected = counts["rejected"]!.GetValue<long>(),
-                    TruncatedRows = counts["truncated_rows"]!.GetValue<long>(),
-                    Tokens = counts["tokens"]!.GetValue<long>(),
+                    Counts = RunCounts.FromRecord(record["counts"]!),
                     Files = record["files"]!.AsArray()
                         .Select(f => (f!["file"]!.GetValue<string>(), f["dtype"]!.GetValue<string>(), f["shape"]![1]!.GetValue<int>()))
                         .ToArray(),
