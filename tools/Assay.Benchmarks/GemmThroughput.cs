@@ -2,6 +2,7 @@ using System.Globalization;
 using Assay.Fixtures;
 using Assay.Kernels;
 using Assay.Model;
+using Assay.Weights;
 
 namespace Assay.Benchmarks;
 
@@ -40,13 +41,13 @@ internal static class GemmThroughput
             foreach (WeightPrecision precision in Enum.GetValues<WeightPrecision>())
             {
                 PackedMatrix packed = PackedMatrix.FromRowMajor(b, k, n, bias, precision);
-                foreach (KernelVariant v in new[] { KernelVariant.Vector512, KernelVariant.Vector256, KernelVariant.Scalar }.Where(KernelSelector.IsSupported))
+                foreach (KernelVariant v in new[] { KernelVariant.Vector512, KernelVariant.Vector256, KernelVariant.Vector128, KernelVariant.Scalar }.Where(KernelSelector.IsSupported))
                 {
                     if (v == KernelVariant.Scalar && precision != WeightPrecision.Binary32)
                     {
                         continue;
                     }
-                    double seconds = FmaPeak.Median(v == KernelVariant.Scalar ? 1 : repeats, () => Kernels.Kernels.Gemm(a, m, k, packed, c, n, false, v, parallel));
+                    double seconds = FmaPeak.Median(v == KernelVariant.Scalar ? 1 : repeats, () => CpuKernels.Gemm(a, m, k, packed, c, n, false, v, parallel));
                     double gflops = 2.0 * m * k * n / seconds / 1e9;
                     string weights = precision switch
                     {
@@ -76,7 +77,7 @@ internal static class GemmThroughput
             {
                 for (int i = 0; i < 200; i++)
                 {
-                    Kernels.Kernels.Gemm(a, m, k, b, c, n, i % 2 == 0, v, parallel);
+                    CpuKernels.Gemm(a, m, k, b, c, n, i % 2 == 0, v, parallel);
                 }
             }
         }

@@ -7,7 +7,8 @@ using BenchmarkDotNet.Attributes;
 using BenchmarkDotNet.Configs;
 using BenchmarkDotNet.Jobs;
 using BenchmarkDotNet.Toolchains.InProcess.Emit;
-using K = Assay.Kernels.Kernels;
+using K = Assay.Kernels.CpuKernels;
+using Assay.Weights;
 
 namespace Assay.Benchmarks;
 

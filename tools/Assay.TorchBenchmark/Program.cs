@@ -5,6 +5,7 @@ using Assay.Model;
 using Assay.TorchBenchmark;
 using TorchSharp;
 using static TorchSharp.torch;
+using Assay.Weights;
 
 // assay-torch-bench [--batch B] [--length T] [--repeats R] [--threads N]
 // One run, one process: the engine's forward pass and libtorch's (float32 and bfloat16) on the same random

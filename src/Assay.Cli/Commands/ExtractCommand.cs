@@ -4,6 +4,7 @@ using Assay.Features;
 using Assay.Input;
 using Assay.Model;
 using Assay.Output;
+using Assay.Weights;
 
 namespace Assay.Cli.Commands;
 
@@ -21,7 +22,7 @@ internal static class ExtractCommand
         var input = new Argument<FileInfo>("input") { Description = "Texts: plain lines (.txt), JSON lines (.jsonl), CSV (.csv) or TSV (.tsv) with a header." };
         var output = new Option<DirectoryInfo>("--out", "-o") { Description = "Run folder to write (created if missing).", Required = true };
         var prompt = new Option<string>("--prompt") { Description = "Template around each text, with {text} and optionally {mark}; {{ and }} for braces.", DefaultValueFactory = _ => "{text}" };
-        var features = new Option<string>("--features") { Description = "Comma-separated: hidden[:LAYER|all][:last|mean|mark], nextword, topk:K, words, words-loglik, cmean, completions.", DefaultValueFactory = _ => FeatureSpecs.Default };
+        var features = new Option<string>("--features") { Description = "Comma-separated: " + FeatureSpec.Syntax + ".", DefaultValueFactory = _ => FeatureSpec.Default };
         var words = new Option<FileInfo>("--words") { Description = "Word list for words / words-loglik: one word per line." };
         var completions = new Option<FileInfo>("--completions") { Description = "Candidate completions for completions: one per line." };
         var format = new Option<string>("--format") { Description = "auto, lines, jsonl, csv or tsv.", DefaultValueFactory = _ => "auto" };
@@ -125,7 +126,7 @@ internal static class ExtractCommand
             Extraction = new ExtractionOptions
             {
                 Prompt = template,
-                Features = FeatureSpecs.Parse(q.Features, model.Config.Layers, q.Words, q.Completions),
+                Features = FeatureOption.Parse(q.Features, model.Config.Layers, q.Words, q.Completions),
                 Truncation = truncation,
                 LeadingSpace = q.LeadingSpace,
                 TokenBudget = q.TokenBudget,
@@ -237,18 +238,15 @@ internal static class ExtractCommand
             o.WriteLine(string.Create(inv, $"resumed     after {s.ResumedAt:N0} committed rows"));
         }
         string others = shard == null ? "" : string.Create(inv, $" + {s.Read - s.Accepted - s.Rejected:N0} left to the other shards");
-        o.WriteLine(string.Create(inv, $"records     {s.Read:N0} read = {s.Accepted:N0} accepted{others} + {s.Rejected:N0} rejected{(s.Rejected > 0 ? $" (see {ExtractionRun.RejectsFile})" : "")}"));
+        o.WriteLine(string.Create(inv, $"records     {s.Read:N0} read = {s.Accepted:N0} accepted{others} + {s.Rejected:N0} rejected{(s.Rejected > 0 ? $" (see {RunFolder.RejectsFile})" : "")}"));
         o.WriteLine(string.Create(inv, $"truncated   {s.TruncatedRows:N0} rows cut to fit the context"));
         double seconds = s.Elapsed.TotalSeconds;
         o.WriteLine(string.Create(inv, $"tokens      {s.Tokens:N0} in all rows' filled templates; this session {seconds:F1} s"));
-        string record = Path.Combine(folder, ExtractionRun.RecordFile);
-        if (File.Exists(record))
+        if (File.Exists(Path.Combine(folder, RunFolder.RecordFile)))
         {
-            using var doc = System.Text.Json.JsonDocument.Parse(File.ReadAllBytes(record));
-            foreach (System.Text.Json.JsonElement f in doc.RootElement.GetProperty("files").EnumerateArray())
+            foreach (RunOutputFile f in RunRecord.Read(folder).Files)
             {
-                var shape = f.GetProperty("shape").EnumerateArray().Select(x => x.GetInt64().ToString(inv));
-                o.WriteLine($"file        {f.GetProperty("file").GetString()}  {f.GetProperty("dtype").GetString()}  ({string.Join(" × ", shape)})");
+                o.WriteLine(string.Create(inv, $"file        {f.File}  {f.DType}  ({f.Rows} × {f.Width})"));
             }
         }
     }

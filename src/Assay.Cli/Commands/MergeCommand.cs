@@ -40,7 +40,7 @@ internal static class MergeCommand
             return ExtractCommand.WriteFailed;
         }
         o.WriteLine($"run folder  {output}");
-        o.WriteLine(string.Create(inv, $"merged      {s.Shards} shards: {s.Rows:N0} rows, {s.Rejected:N0} rejected, {s.Files} feature files (provenance in {RunMerge.MergeFile})"));
+        o.WriteLine(string.Create(inv, $"merged      {s.Shards} shards: {s.Rows:N0} rows, {s.Rejected:N0} rejected, {s.Files} feature files (provenance in {RunFolder.MergeFile})"));
         return 0;
     }
 

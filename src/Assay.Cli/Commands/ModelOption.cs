@@ -1,5 +1,6 @@
 using System.CommandLine;
 using Assay.Model;
+using Assay.Weights;
 
 namespace Assay.Cli.Commands;
 

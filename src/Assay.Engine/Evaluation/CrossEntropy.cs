@@ -43,7 +43,6 @@ public static class CrossEntropy
         }
         long count = 0, tokens = 0, bytes = 0;
         double nats = 0;
-        float[] scratch = new float[model.Config.VocabularySize];
         foreach (string text in texts)
         {
             int[] ids = [model.Tokenizer.EndOfTextId, .. model.Tokenizer.Encode(text)];
@@ -56,29 +55,12 @@ public static class CrossEntropy
                 ForwardResult r = model.Forward([ids[begin..end]], new ForwardOptions { Logits = LogitPositions.All });
                 for (int target = Math.Max(begin + 1, scoredUpTo); target < end; target++)
                 {
-                    r.Logits(0, target - 1 - begin).CopyTo(scratch);
-                    nats -= LogSoftmaxAt(scratch, ids[target]);
+                    nats -= r.LogProbability(0, target - 1 - begin, ids[target]);
                     tokens++;
                 }
                 scoredUpTo = end;
             }
         }
         return new CrossEntropyResult(count, tokens, bytes, nats);
-    }
-
-    /// <summary>log softmax(x)[index] = x[index] − max − ln Σ exp(x − max), summed in float64.</summary>
-    private static double LogSoftmaxAt(ReadOnlySpan<float> x, int index)
-    {
-        double max = double.NegativeInfinity;
-        foreach (float v in x)
-        {
-            max = Math.Max(max, v);
-        }
-        double sum = 0;
-        foreach (float v in x)
-        {
-            sum += Math.Exp(v - max);
-        }
-        return x[index] - max - Math.Log(sum);
     }
 }

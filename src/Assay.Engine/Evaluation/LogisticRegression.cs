@@ -1,3 +1,4 @@
+using Assay.Kernels;
 using MathNet.Numerics.LinearAlgebra;
 using MathNet.Numerics.Optimization;
 
@@ -112,26 +113,21 @@ internal sealed class LogisticRegression
     {
         double loss = 0;
         double[] z = new double[k];
+        double[] logits = new double[k];
         for (int i = start; i < end; i++)
         {
             ReadOnlySpan<double> xi = x.AsSpan(i * d, d);
-            double max = double.NegativeInfinity;
             for (int j = 0; j < k; j++)
             {
                 double s = t[(k * d) + j] + System.Numerics.Tensors.TensorPrimitives.Dot(t.AsSpan(j * d, d), xi);
                 z[j] = s;
-                max = Math.Max(max, s);
             }
-            double sum = 0;
+            z.CopyTo(logits, 0);
+            loss -= CpuKernels.LogSoftmaxAt<double>(logits, y[i]);
+            CpuKernels.SoftmaxInPlace<double>(z);
             for (int j = 0; j < k; j++)
             {
-                z[j] = Math.Exp(z[j] - max);
-                sum += z[j];
-            }
-            loss += Math.Log(sum) - Math.Log(z[y[i]]);
-            for (int j = 0; j < k; j++)
-            {
-                double r = (z[j] / sum) - (j == y[i] ? 1 : 0);
+                double r = z[j] - (j == y[i] ? 1 : 0);
                 Span<double> g = grad.AsSpan(j * d, d);
                 System.Numerics.Tensors.TensorPrimitives.MultiplyAdd(xi, r, g, g);
                 grad[(k * d) + j] += r;
@@ -149,7 +145,6 @@ internal sealed class LogisticRegression
     /// <summary>Class probabilities of one row.</summary>
     public void Probabilities(ReadOnlySpan<double> row, Span<double> p)
     {
-        double max = double.NegativeInfinity;
         for (int j = 0; j < Classes; j++)
         {
             double s = Intercepts[j];
@@ -159,17 +154,7 @@ internal sealed class LogisticRegression
                 s += w[f] * row[f];
             }
             p[j] = s;
-            max = Math.Max(max, s);
         }
-        double sum = 0;
-        for (int j = 0; j < Classes; j++)
-        {
-            p[j] = Math.Exp(p[j] - max);
-            sum += p[j];
-        }
-        for (int j = 0; j < Classes; j++)
-        {
-            p[j] /= sum;
-        }
+        CpuKernels.SoftmaxInPlace(p[..Classes]);
     }
 }

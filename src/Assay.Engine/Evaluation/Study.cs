@@ -152,33 +152,27 @@ public static class Study
         int layers = model.Config.Layers;
         foreach (string feature in spec.Features)
         {
-            switch (feature)
+            // zero-shot reads the verbalizer's word probabilities: the words kind, computed once for both.
+            string kind = feature == "zero-shot" ? WordListFeature.ListName : feature;
+            FeatureRequest request = FeatureSpec.Parse(kind, layers, _ => verbalizer!.AllWords).Single();
+            if (request is HiddenStateFeature h)
             {
-                case "cmean":
-                    requests.Add(new ConditionalMeanFeature());
-                    stems[feature] = "cmean";
-                    break;
-                case "words" or "zero-shot":
-                    if (!requests.OfType<WordListFeature>().Any())
-                    {
-                        requests.Add(new WordListFeature(verbalizer!.AllWords));
-                    }
-                    stems[feature] = "words.first";
-                    break;
-                default:
+                try
                 {
-                    int layer = feature == "hidden" ? layers : int.Parse(feature["hidden:".Length..], CultureInfo.InvariantCulture);
-                    layer = layer < 0 ? layers + 1 + layer : layer;
-                    if (layer < 0 || layer > layers)
-                    {
-                        throw new StudyException(spec.Path, string.Create(CultureInfo.InvariantCulture, $"features: {feature}: the models have layers 0 … {layers}"));
-                    }
-                    var h = new HiddenStateFeature(layer);
-                    requests.Add(h);
-                    stems[feature] = string.Create(CultureInfo.InvariantCulture, $"hidden.layer{layer}.last");
-                    break;
+                    // The study's runs name the layer itself, so a run folder says which layer it holds.
+                    request = h with { Layer = HiddenStateFeature.ResolveLayer(h.Layer, layers) };
+                }
+                catch (ArgumentException)
+                {
+                    throw new StudyException(spec.Path, string.Create(CultureInfo.InvariantCulture, $"features: {feature}: the models have layers 0 … {layers}"));
                 }
             }
+            FeatureRequest? same = requests.Find(r => r.GetType() == request.GetType() && r.Spec == request.Spec);
+            if (same == null)
+            {
+                requests.Add(request);
+            }
+            stems[feature] = (same ?? request).Outputs(model.Config)[0].Name;
         }
         return ([.. requests], stems);
     }
@@ -271,7 +265,7 @@ public static class Study
                 File.Delete(path);
             }
         }
-        WriteAtomically(specPath, current.ToJsonString(Indented) + "\n");
+        AtomicFile.WriteText(specPath, current.ToJsonString(Indented) + "\n");
     }
 
     /// <summary>Files a report writer puts beside the study's own (results tables and plots).</summary>
@@ -301,7 +295,7 @@ public static class Study
                     w.Write('\n');
                 }
             }
-            WriteAtomically(target, w.ToString());
+            AtomicFile.WriteText(target, w.ToString());
         }
         return target;
     }
@@ -322,15 +316,8 @@ public static class Study
             return read(JsonNode.Parse(File.ReadAllBytes(path))!.AsObject());
         }
         T value = compute();
-        WriteAtomically(path, write(value).ToJsonString(Indented) + "\n");
+        AtomicFile.WriteText(path, write(value).ToJsonString(Indented) + "\n");
         return value;
-    }
-
-    private static void WriteAtomically(string path, string text)
-    {
-        string temporary = path + ".tmp";
-        File.WriteAllText(temporary, text);
-        File.Move(temporary, path, overwrite: true);
     }
 
     private static JsonObject WriteCrossEntropy(CrossEntropyResult r) => new()

@@ -1,9 +1,7 @@
 using System.Buffers;
 using System.Diagnostics;
 using System.Globalization;
-using System.Numerics.Tensors;
 using System.Runtime.CompilerServices;
-using Assay.Kernels;
 using Assay.Model;
 
 namespace Assay.Features;
@@ -27,13 +25,13 @@ public sealed class FeatureExtractor
     private readonly int[][] _before;
     private readonly int[][] _after;
     private readonly int _promptTokens;
+    private readonly FeatureStep[] _steps;
     private readonly int[] _layersToKeep;
-    private readonly bool _needsNextWord;
-    private readonly List<Candidate> _candidates = [];
-    private readonly int[]? _firstTokens;     // per word of a WordListFeature: the id whose probability is read
+    private readonly bool _needsDistribution;
+    private readonly List<Continuation> _continuations = [];
     private readonly int _finalLayer;
 
-    /// <summary>Prepares an extraction: tokenizes the prompt and every word and candidate, and checks they fit.</summary>
+    /// <summary>Prepares an extraction: binds every feature kind (tokenizing the prompt, words and candidates) and checks they fit.</summary>
     /// <exception cref="ArgumentException">A layer out of range, a {mark} pooling without a {mark}, an empty word list,
     /// a word or candidate with no tokens, two features with the same output, or a prompt too long for the context.</exception>
     public FeatureExtractor(LanguageModel model, ExtractionOptions options)
@@ -56,84 +54,24 @@ public sealed class FeatureExtractor
         }
 
         var tok = model.Tokenizer;
-        int layers = model.Config.Layers;
-        _finalLayer = layers;
+        _finalLayer = model.Config.Layers;
         _before = options.Prompt.Before.Select(tok.Encode).ToArray();
         _after = options.Prompt.After.Select(tok.Encode).ToArray();
         _promptTokens = _before.Sum(p => p.Length) + _after.Sum(p => p.Length);
 
         var outputs = new List<FeatureOutput>();
-        var keep = new SortedSet<int>();
-        int d = model.Config.Width, v = model.Config.VocabularySize;
+        var steps = new List<FeatureStep>();
+        var binding = new FeatureBinding(model, options);
         foreach (FeatureRequest request in options.Features)
         {
-            switch (request)
+            IReadOnlyList<FeatureOutput> own = request.Outputs(model.Config);
+            FeatureStep step = request.Bind(binding, outputs.Count);
+            outputs.AddRange(own);
+            for (int c = 0; c < step.Continuations.Count; c++)
             {
-                case HiddenStateFeature h:
-                {
-                    int layer = h.Layer < 0 ? layers + 1 + h.Layer : h.Layer;
-                    if (layer < 0 || layer > layers)
-                    {
-                        throw new ArgumentException($"hidden layer {h.Layer}: this model has layers 0 … {layers} (or −1 … −{layers + 1} from the end)", nameof(options));
-                    }
-                    if (h.Pooling == HiddenPooling.Marked && !options.Prompt.HasMark)
-                    {
-                        throw new ArgumentException($"{h.Spec} reads the token before {{mark}}, but the prompt \"{options.Prompt.Source}\" has no {{mark}}", nameof(options));
-                    }
-                    keep.Add(layer);
-                    outputs.Add(new FeatureOutput(string.Create(CultureInfo.InvariantCulture,
-                        $"hidden.layer{layer}.{HiddenStateFeature.PoolingName(h.Pooling)}"), d, FeatureElement.Real, h));
-                    break;
-                }
-                case NextWordFeature n:
-                    _needsNextWord = true;
-                    outputs.Add(new FeatureOutput("nextword", v, FeatureElement.Real, n));
-                    break;
-                case TopTokensFeature t:
-                {
-                    if (t.Count < 1 || t.Count > v)
-                    {
-                        throw new ArgumentException($"topk:{t.Count}: expected 1 … {v} (the vocabulary)", nameof(options));
-                    }
-                    _needsNextWord = true;
-                    string name = string.Create(CultureInfo.InvariantCulture, $"topk{t.Count}");
-                    outputs.Add(new FeatureOutput(name + ".ids", t.Count, FeatureElement.TokenId, t));
-                    outputs.Add(new FeatureOutput(name + ".probs", t.Count, FeatureElement.Real, t));
-                    break;
-                }
-                case WordListFeature w:
-                {
-                    if (_firstTokens != null)
-                    {
-                        throw new ArgumentException("one word list per extraction: give words or words-loglik, not both", nameof(options));
-                    }
-                    int[][] ids = EncodeAll(w.Words, "word");
-                    _firstTokens = ids.Select(x => x[0]).ToArray();
-                    _needsNextWord = true;
-                    outputs.Add(new FeatureOutput("words.first", ids.Length, FeatureElement.Real, w));
-                    if (w.FullLogLikelihood)
-                    {
-                        int output = outputs.Count;
-                        outputs.Add(new FeatureOutput("words.loglik", ids.Length, FeatureElement.Real, w));
-                        AddCandidates(ids, output);
-                    }
-                    break;
-                }
-                case ConditionalMeanFeature c:
-                    _needsNextWord = true;
-                    outputs.Add(new FeatureOutput("cmean", d, FeatureElement.Real, c));
-                    break;
-                case CompletionFeature c:
-                {
-                    int[][] ids = EncodeAll(c.Candidates, "candidate completion");
-                    int output = outputs.Count;
-                    outputs.Add(new FeatureOutput("completions.loglik", ids.Length, FeatureElement.Real, c));
-                    AddCandidates(ids, output);
-                    break;
-                }
-                default:
-                    throw new ArgumentException($"unknown feature request {request.GetType().Name}", nameof(options));
+                _continuations.Add(new Continuation(step.Continuations[c], step, c));
             }
+            steps.Add(step);
         }
 
         string? duplicate = outputs.GroupBy(o => o.Name, StringComparer.Ordinal).FirstOrDefault(g => g.Count() > 1)?.Key;
@@ -141,14 +79,17 @@ public sealed class FeatureExtractor
         {
             throw new ArgumentException($"two features write the output {duplicate}; ask for each once", nameof(options));
         }
-        if (_needsNextWord || _candidates.Count > 0)
+        _steps = [.. steps];
+        _needsDistribution = _steps.Any(s => s.NeedsDistribution);
+        var keep = new SortedSet<int>(_steps.SelectMany(s => s.Layers));
+        if (_needsDistribution || _continuations.Count > 0)
         {
             keep.Add(_finalLayer);
         }
         _layersToKeep = [.. keep];
         Outputs = outputs;
 
-        int longestCandidate = _candidates.Count == 0 ? 0 : _candidates.Max(c => c.Ids.Length);
+        int longestCandidate = _continuations.Count == 0 ? 0 : _continuations.Max(c => c.Ids.Length);
         TextTokenLimit = model.Config.ContextLength - _promptTokens - longestCandidate;
         if (TextTokenLimit < 1)
         {
@@ -254,13 +195,13 @@ public sealed class FeatureExtractor
         }
 
         // One job per forward sequence: the filled template, and the template followed by each candidate.
-        var jobs = new List<Job>(count * (1 + _candidates.Count));
+        var jobs = new List<Job>(count * (1 + _continuations.Count));
         for (int i = 0; i < count; i++)
         {
             jobs.Add(new Job(i, -1, rows[i].Tokens.Length));
-            for (int c = 0; c < _candidates.Count; c++)
+            for (int c = 0; c < _continuations.Count; c++)
             {
-                jobs.Add(new Job(i, c, rows[i].Tokens.Length + _candidates[c].Ids.Length));
+                jobs.Add(new Job(i, c, rows[i].Tokens.Length + _continuations[c].Ids.Length));
             }
         }
         jobs.Sort(static (a, b) => a.Length != b.Length ? a.Length.CompareTo(b.Length)
@@ -301,7 +242,7 @@ public sealed class FeatureExtractor
         {
             Job job = jobs[j];
             int[] prefix = rows[job.Row].Tokens;
-            sequences[j - start] = job.Candidate < 0 ? prefix : [.. prefix, .. _candidates[job.Candidate].Ids];
+            sequences[j - start] = job.Candidate < 0 ? prefix : [.. prefix, .. _continuations[job.Candidate].Ids];
         }
         ForwardResult r = _model.Forward(sequences, new ForwardOptions
         {
@@ -317,15 +258,19 @@ public sealed class FeatureExtractor
             int s = j - start;
             if (job.Candidate < 0)
             {
-                HiddenFeatures(r, s, rows[job.Row], values[job.Row]);
-                if (_needsNextWord)
+                var outputs = new RowOutputs(values[job.Row], ids[job.Row]);
+                foreach (FeatureStep step in _steps)
+                {
+                    step.FromHidden(r, s, rows[job.Row], outputs);
+                }
+                if (_needsDistribution)
                 {
                     headRows.Add(new HeadRow(s, r.Length(s) - 1, job.Row, -1, 0));
                 }
             }
             else
             {
-                int[] cand = _candidates[job.Candidate].Ids;
+                int[] cand = _continuations[job.Candidate].Ids;
                 int prefix = rows[job.Row].Tokens.Length;
                 for (int t = 0; t < cand.Length; t++)
                 {
@@ -336,42 +281,10 @@ public sealed class FeatureExtractor
         HeadFeatures(r, headRows, values, ids);
     }
 
-    private void HiddenFeatures(ForwardResult r, int s, PreparedRow row, float[]?[] values)
-    {
-        for (int o = 0; o < Outputs.Count; o++)
-        {
-            if (Outputs[o].Request is not HiddenStateFeature h)
-            {
-                continue;
-            }
-            int layer = h.Layer < 0 ? _finalLayer + 1 + h.Layer : h.Layer;
-            Span<float> dst = values[o];
-            switch (h.Pooling)
-            {
-                case HiddenPooling.LastToken:
-                    r.HiddenState(layer, s, r.Length(s) - 1).CopyTo(dst);
-                    break;
-                case HiddenPooling.Marked:
-                    r.HiddenState(layer, s, row.MarkPosition).CopyTo(dst);
-                    break;
-                default:
-                {
-                    dst.Clear();
-                    int length = r.Length(s);
-                    for (int t = 0; t < length; t++)
-                    {
-                        TensorPrimitives.Add(dst, r.HiddenState(layer, s, t), dst);
-                    }
-                    TensorPrimitives.Multiply(dst, 1f / length, dst);
-                    break;
-                }
-            }
-        }
-    }
-
     /// <summary>
     /// Sends the final hidden states of the rows that need the output head through it, a slice at a time, and turns
-    /// each logits row into what it feeds: the next-word features, or one term of a candidate's log-likelihood.
+    /// each logits row into what it feeds: a next-word distribution for the steps, or one term of a continuation's
+    /// log-likelihood.
     /// </summary>
     private void HeadFeatures(ForwardResult r, List<HeadRow> headRows, float[]?[][] values, int[]?[][] ids)
     {
@@ -384,11 +297,9 @@ public sealed class FeatureExtractor
         float[] normed = new float[slice * d];
         // The slice's logits (then distributions) are the largest buffer of a batch: pooled, so a long run reuses it.
         float[] logits = ArrayPool<float>.Shared.Rent(slice * v);
-        float[] cmeanOut = new float[slice * d];
-        int cmeanOutput = IndexOf<ConditionalMeanFeature>();
         try
         {
-            HeadSlices(r, headRows, values, ids, slice, normed, logits, cmeanOut, cmeanOutput);
+            HeadSlices(r, headRows, values, ids, slice, normed, logits);
         }
         finally
         {
@@ -397,11 +308,10 @@ public sealed class FeatureExtractor
     }
 
     private void HeadSlices(ForwardResult r, List<HeadRow> headRows, float[]?[][] values, int[]?[][] ids, int slice,
-        float[] normed, float[] logits, float[] cmeanOut, int cmeanOutput)
+        float[] normed, float[] logits)
     {
         int d = _model.Config.Width, v = _model.Config.VocabularySize;
-        ModelWeights weights = _model.Weights;
-        KernelVariant variant = KernelSelector.Current;
+        OutputHead head = _model.Head;
         var parallel = new ForwardOptions { MaxThreads = _options.MaxThreads }.Parallelism;
         for (int first = 0; first < headRows.Count; first += slice)
         {
@@ -411,9 +321,9 @@ public sealed class FeatureExtractor
                 HeadRow h = headRows[first + i];
                 r.HiddenState(_finalLayer, h.Sequence, h.Position).CopyTo(normed.AsSpan(i * d, d));
             }
-            Kernels.Kernels.Gemm(normed, n, d, weights.Head, logits, v, accumulate: false, variant, parallel);
+            head.Logits(normed, n, logits, parallel);
 
-            // Next-word rows become distributions in place; candidate rows give log p(token) = x_t − max − ln Σ exp(x − max).
+            // Next-word rows become distributions in place; continuation rows give log p(token).
             var mainRows = new List<int>();
             for (int i = 0; i < n; i++)
             {
@@ -421,88 +331,34 @@ public sealed class FeatureExtractor
                 Span<float> x = logits.AsSpan(i * v, v);
                 if (h.Candidate < 0)
                 {
-                    Kernels.Kernels.SoftmaxInPlace(x);
-                    NextWordFeatures(x, values[h.Row], ids[h.Row]);
+                    OutputHead.Softmax(x);
                     mainRows.Add(i);
                 }
                 else
                 {
-                    float max = TensorPrimitives.Max(x);
-                    float target = x[h.Token];
-                    TensorPrimitives.Subtract(x, max, x);
-                    TensorPrimitives.Exp(x, x);
-                    float logProbability = target - max - MathF.Log(TensorPrimitives.Sum(x));
-                    Candidate c = _candidates[h.Candidate];
-                    values[h.Row][c.Output]![c.Column] += logProbability;
+                    Continuation c = _continuations[h.Candidate];
+                    c.Owner.AddLogProbability(c.Column, OutputHead.LogProbability(x, h.Token), new RowOutputs(values[h.Row], ids[h.Row]));
                 }
             }
 
-            if (cmeanOutput >= 0 && mainRows.Count > 0)
+            if (mainRows.Count > 0)
             {
                 // Distributions of this slice laid end to end (they already are when every row is a next-word row).
                 float[] p = mainRows.Count == n ? logits : Gather(logits, mainRows, v);
-                Kernels.Kernels.ConditionalMean(p, mainRows.Count, weights.Head, cmeanOut, variant, parallel);
+                var outputs = new RowOutputs[mainRows.Count];
                 for (int m = 0; m < mainRows.Count; m++)
                 {
-                    cmeanOut.AsSpan(m * d, d).CopyTo(values[headRows[first + mainRows[m]].Row][cmeanOutput]);
+                    int row = headRows[first + mainRows[m]].Row;
+                    outputs[m] = new RowOutputs(values[row], ids[row]);
                 }
-            }
-        }
-    }
-
-    private void NextWordFeatures(ReadOnlySpan<float> p, float[]?[] values, int[]?[] ids)
-    {
-        for (int o = 0; o < Outputs.Count; o++)
-        {
-            FeatureOutput output = Outputs[o];
-            switch (output.Request)
-            {
-                case NextWordFeature:
-                    p.CopyTo(values[o]);
-                    break;
-                case TopTokensFeature t when output.Element == FeatureElement.TokenId:
-                    TopTokens(p, t.Count, ids[o]!, values[o + 1]!);
-                    break;
-                case WordListFeature when output.Name == "words.first":
+                foreach (FeatureStep step in _steps)
                 {
-                    float[] dst = values[o]!;
-                    for (int w = 0; w < dst.Length; w++)
+                    if (step.NeedsDistribution)
                     {
-                        dst[w] = p[_firstTokens![w]];
+                        step.FromDistributions(p, mainRows.Count, outputs, head, parallel);
                     }
-                    break;
-                }
-                default:
-                    break;
-            }
-        }
-    }
-
-    /// <summary>The k largest probabilities, descending; equal probabilities by ascending id.</summary>
-    private static void TopTokens(ReadOnlySpan<float> p, int k, int[] ids, float[] probabilities)
-    {
-        // A min-heap of the best k so far, whose root is the weakest: lower probability, or higher id at a tie.
-        var heap = new PriorityQueue<int, (float P, int Id)>(k, WeakestFirst.Instance);
-        for (int id = 0; id < p.Length; id++)
-        {
-            if (heap.Count < k)
-            {
-                heap.Enqueue(id, (p[id], id));
-            }
-            else
-            {
-                heap.TryPeek(out _, out (float P, int Id) weakest);
-                if (p[id] > weakest.P)
-                {
-                    heap.DequeueEnqueue(id, (p[id], id));
                 }
             }
-        }
-        for (int i = k - 1; i >= 0; i--)
-        {
-            heap.TryDequeue(out int id, out (float P, int Id) key);
-            ids[i] = id;
-            probabilities[i] = key.P;
         }
     }
 
@@ -549,60 +405,12 @@ public sealed class FeatureExtractor
         return new PreparedRow([.. tokens], truncated, mark);
     }
 
-    private int[][] EncodeAll(IReadOnlyList<string> items, string what)
-    {
-        if (items.Count == 0)
-        {
-            throw new ArgumentException($"the {what} list is empty", nameof(items));
-        }
-        var result = new int[items.Count][];
-        for (int i = 0; i < items.Count; i++)
-        {
-            string item = items[i] ?? throw new ArgumentException($"{what} {i + 1} is null", nameof(items));
-            result[i] = _model.Tokenizer.Encode(_options.LeadingSpace ? " " + item : item);
-            if (result[i].Length == 0)
-            {
-                throw new ArgumentException($"{what} {i + 1} (\"{item}\") has no tokens", nameof(items));
-            }
-        }
-        return result;
-    }
-
-    private void AddCandidates(int[][] ids, int output)
-    {
-        for (int i = 0; i < ids.Length; i++)
-        {
-            _candidates.Add(new Candidate(ids[i], output, i));
-        }
-    }
-
-    private int IndexOf<T>() where T : FeatureRequest
-    {
-        for (int o = 0; o < Outputs.Count; o++)
-        {
-            if (Outputs[o].Request is T)
-            {
-                return o;
-            }
-        }
-        return -1;
-    }
-
-    private readonly record struct PreparedRow(int[] Tokens, int Truncated, int MarkPosition);
-
     private readonly record struct Job(int Row, int Candidate, int Length);
 
     private readonly record struct HeadRow(int Sequence, int Position, int Row, int Candidate, int Token);
 
-    private sealed record Candidate(int[] Ids, int Output, int Column);
-
-    private sealed class WeakestFirst : IComparer<(float P, int Id)>
-    {
-        public static readonly WeakestFirst Instance = new();
-
-        public int Compare((float P, int Id) a, (float P, int Id) b) =>
-            a.P != b.P ? a.P.CompareTo(b.P) : b.Id.CompareTo(a.Id);
-    }
+    /// <summary>A continuation to score after every row: its tokens, and the step and column its log-likelihood goes to.</summary>
+    private sealed record Continuation(int[] Ids, FeatureStep Owner, int Column);
 }
 
 /// <summary>Counts rows and tokens across the groups of one extraction and reports them.</summary>

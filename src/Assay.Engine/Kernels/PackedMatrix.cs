@@ -1,7 +1,7 @@
 using System.Diagnostics;
 using System.Runtime.CompilerServices;
 using System.Runtime.Intrinsics;
-using Assay.Model;
+using Assay.Weights;
 
 namespace Assay.Kernels;
 

@@ -33,7 +33,7 @@ public sealed record ForwardOptions
 
     internal ParallelOptions Parallelism => MaxThreads > 0
         ? new ParallelOptions { MaxDegreeOfParallelism = MaxThreads }
-        : Kernels.Kernels.DefaultParallelism;
+        : Assay.Kernels.CpuKernels.DefaultParallelism;
 
     /// <summary>The options of <c>assay next</c>: logits at the last position, no hidden states.</summary>
     public static ForwardOptions LastLogits { get; } = new();

@@ -63,7 +63,30 @@ public sealed class ForwardResult
             throw new ArgumentException($"destination holds {destination.Length} values; expected {logits.Length}", nameof(destination));
         }
         logits.CopyTo(destination);
-        Kernels.Kernels.SoftmaxInPlace(destination);
+        OutputHead.Softmax(destination);
+    }
+
+    /// <summary>
+    /// log p(<paramref name="token"/>) after position <paramref name="position"/> of a sequence: the log-softmax of that
+    /// position's logits at the token, in float64 (a corpus's cross-entropy sums millions of these terms).
+    /// </summary>
+    /// <exception cref="InvalidOperationException">Logits were not computed at that position.</exception>
+    public double LogProbability(int sequence, int position, int token)
+    {
+        ReadOnlySpan<float> logits = Logits(sequence, position);
+        ArgumentOutOfRangeException.ThrowIfNegative(token);
+        ArgumentOutOfRangeException.ThrowIfGreaterThanOrEqual(token, logits.Length);
+        double[] scratch = System.Buffers.ArrayPool<double>.Shared.Rent(logits.Length);
+        try
+        {
+            Span<double> x = scratch.AsSpan(0, logits.Length);
+            System.Numerics.Tensors.TensorPrimitives.ConvertChecked<float, double>(logits, x);
+            return Assay.Kernels.CpuKernels.LogSoftmaxAt<double>(x, token);
+        }
+        finally
+        {
+            System.Buffers.ArrayPool<double>.Shared.Return(scratch);
+        }
     }
 
     /// <summary>Logits (V values) after position <paramref name="position"/> of a sequence.</summary>

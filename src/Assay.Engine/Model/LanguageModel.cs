@@ -24,8 +24,8 @@ public sealed class LanguageModel
         _weights = weights;
     }
 
-    /// <summary>The converted parameters, for the feature kernels that read the output head directly.</summary>
-    internal ModelWeights Weights => _weights;
+    /// <summary>The output head: logits, distributions, log-probabilities and Φp from final hidden states.</summary>
+    internal OutputHead Head => _weights.Head;
 
     /// <summary>The checkpoint folder.</summary>
     public string Folder { get; }
@@ -73,7 +73,7 @@ public sealed class LanguageModel
                 $"the tokenizer has ids up to {tokenizer.VocabularySize - 1}; {configPath} has vocab_size {config.VocabularySize}");
         }
         using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
-        ModelWeights weights = ModelWeights.Load(checkpoint, config, configPath, precision);
+        ModelWeights weights = Gpt2.Gpt2Layout.Load(checkpoint, config, configPath, precision);
         return new LanguageModel(folder, config, tokenizer, weights);
     }
 
@@ -86,7 +86,7 @@ public sealed class LanguageModel
     {
         ArgumentNullException.ThrowIfNull(checkpoint);
         ArgumentNullException.ThrowIfNull(config);
-        return ModelWeights.Check(checkpoint, config, configPath);
+        return Gpt2.Gpt2Layout.Check(checkpoint, config, configPath);
     }
 
     /// <summary>

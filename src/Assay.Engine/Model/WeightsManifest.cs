@@ -138,7 +138,7 @@ public static class WeightsManifest
     private static JsonArray Inventory(ModelConfig config)
     {
         var tensors = new JsonArray();
-        foreach ((string name, long[] shape) in ModelWeights.ExpectedParameters(config))
+        foreach ((string name, long[] shape) in Gpt2.Gpt2Layout.ExpectedParameters(config))
         {
             tensors.Add(new JsonObject { ["name"] = name, ["shape"] = new JsonArray([.. shape.Select(s => JsonValue.Create(s))]) });
         }

@@ -9,46 +9,19 @@ using Assay.Input;
 using Assay.Kernels;
 using Assay.Model;
 using CsvHelper;
+using Assay.Weights;
 
 namespace Assay.Output;
 
 /// <summary>
-/// One extraction from an input file into a run folder:
-/// <list type="bullet">
-/// <item>one .npy per feature output (row i = accepted input record i, in input order);</item>
-/// <item><c>rows.csv</c>: row, line, id, label, tokens, truncated_tokens;</item>
-/// <item><c>rejects.csv</c>: line, reason for each rejected record;</item>
-/// <item><c>record.json</c>: what was computed from what (engine version, model files and hashes, input hash,
-/// prompt, features, options, counts) — byte-identical for identical runs, resumed or not;</item>
-/// <item><c>timing.json</c>: when, how fast and with how much memory each session ran (differs between runs);</item>
-/// <item><c>progress.json</c>: only while the run is unfinished — the last commit, from which <c>--resume</c> goes on.</item>
-/// </list>
-/// Work is committed every <see cref="RunOptions.CommitRows"/> rows: data appended and flushed to disk, .npy headers
-/// updated, then progress.json replaced atomically. A run killed at any point loses at most the rows since the last
-/// commit; resuming truncates every file to that commit and recomputes the rest, giving the same bytes.
+/// One extraction from an input file into a run folder (<see cref="RunFolder"/>). Work is committed every
+/// <see cref="RunOptions.CommitRows"/> rows: data appended and flushed to disk, .npy headers updated, then
+/// progress.json replaced atomically. A run killed at any point loses at most the rows since the last commit;
+/// resuming truncates every file to that commit and recomputes the rest, giving the same bytes.
 /// </summary>
 public static class ExtractionRun
 {
-    /// <summary>The record of a finished run.</summary>
-    public const string RecordFile = "record.json";
-
-    /// <summary>The commit point of an unfinished run.</summary>
-    public const string ProgressFile = "progress.json";
-
-    /// <summary>Sessions, times, throughput and peak memory.</summary>
-    public const string TimingFile = "timing.json";
-
-    /// <summary>The row table.</summary>
-    public const string RowsFile = "rows.csv";
-
-    /// <summary>The rejected records.</summary>
-    public const string RejectsFile = "rejects.csv";
-
     private const int FormatVersion = 1;
-
-    private static readonly JsonSerializerOptions Indented = new() { WriteIndented = true };
-
-    private static readonly CsvWriterOptions CsvOptions = new() { NewLine = "\n" };
 
     /// <summary>Runs (or resumes) an extraction of <paramref name="inputPath"/> into <paramref name="outputFolder"/>.</summary>
     /// <exception cref="RunFolderException">The folder holds a finished run (and neither Resume nor Overwrite is set),
@@ -77,13 +50,13 @@ public static class ExtractionRun
 
         var clock = Stopwatch.StartNew();
         DateTimeOffset started = DateTimeOffset.UtcNow;
-        Progress? resumed = PrepareFolder(outputFolder, options, settings);
+        CommitPoint? resumed = RunFolder.Claim(outputFolder, options.Resume, options.Overwrite, settings);
         if (resumed is { Complete: true })
         {
             return resumed.Summary(alreadyComplete: true, clock.Elapsed);
         }
 
-        var state = resumed ?? new Progress { Settings = settings };
+        var state = resumed ?? new CommitPoint { Settings = settings };
         long resumedAt = state.Rows;
         var session = new JsonObject { ["started"] = Timestamp(started) };
         UpdateSession(session, TimeSpan.Zero, 0, 0);
@@ -96,7 +69,7 @@ public static class ExtractionRun
             {
                 // The data files exist before progress.json does: a folder with neither record nor progress is
                 // always safe to start over in.
-                WriteProgress(outputFolder, state);
+                state.Write(outputFolder);
             }
             long sessionTokens = 0;
             var reporter = progress == null ? null : new BatchReporter(progress, state, reader, clock);
@@ -139,7 +112,7 @@ public static class ExtractionRun
                     }
                     else if (options.Strict)
                     {
-                        throw new TextInputException(reader.Path, r.Line, $"{r.Rejection} (stopped by --strict; without it the record goes to {RejectsFile} and the run goes on)");
+                        throw new TextInputException(reader.Path, r.Line, $"{r.Rejection} (stopped by --strict; without it the record goes to {RunFolder.RejectsFile} and the run goes on)");
                     }
                     else if (shard == null || shard.Index == 1)
                     {
@@ -163,7 +136,7 @@ public static class ExtractionRun
                 sessionTokens = tracker.Tokens;
                 UpdateSession(session, clock.Elapsed, state.Rows - resumedAt, sessionTokens);
                 files.Commit(state);
-                WriteProgress(outputFolder, state);
+                state.Write(outputFolder);
                 reporter?.StartGroup(0, 0);
                 progress?.Report(new RunProgress(state.Rows, state.Consumed, state.Rejected, sessionTokens,
                     reader.TotalBytes == 0 ? 1 : Math.Min(1.0, (double)reader.BytesRead / reader.TotalBytes), clock.Elapsed));
@@ -171,82 +144,13 @@ public static class ExtractionRun
 
             UpdateSession(session, clock.Elapsed, state.Rows - resumedAt, sessionTokens);
             files.Dispose();
-            Finish(outputFolder, state, outputs, shard == null ? null : new JsonObject
-            {
-                ["index"] = shard.Index,
-                ["count"] = shard.Count,
-                ["input_rows"] = inputRows,
-            });
+            Finish(outputFolder, state, outputs, shard, inputRows);
             return state.Summary(alreadyComplete: false, clock.Elapsed) with { ResumedAt = resumedAt };
         }
         finally
         {
             files.Dispose();
         }
-    }
-
-    /// <summary>What a folder holds: nothing, a finished run, an unfinished one, or something else.</summary>
-    private static Progress? PrepareFolder(string folder, RunOptions options, JsonObject settings)
-    {
-        Directory.CreateDirectory(folder);
-        string progressPath = Path.Combine(folder, ProgressFile);
-        string recordPath = Path.Combine(folder, RecordFile);
-        string[] present = Directory.GetFiles(folder).Select(Path.GetFileName).ToArray()!;
-        bool ours(string name) => name is RecordFile or ProgressFile or TimingFile or RowsFile or RejectsFile or RunMerge.MergeFile
-            || name.EndsWith(".npy", StringComparison.Ordinal) || name.EndsWith(".tmp", StringComparison.Ordinal);
-        string[] foreign = present.Where(n => !ours(n)).ToArray();
-        if (foreign.Length > 0 || Directory.GetDirectories(folder).Length > 0)
-        {
-            throw new RunFolderException(folder, $"holds files that are not part of a run ({string.Join(", ", foreign.Take(3).DefaultIfEmpty("a subfolder"))}); give an empty or new folder");
-        }
-
-        if (File.Exists(progressPath) && !options.Overwrite)
-        {
-            if (!options.Resume)
-            {
-                throw new RunFolderException(folder, "holds an unfinished run; pass --resume to continue it or --overwrite to start over");
-            }
-            Progress state = Progress.Load(progressPath);
-            string? difference = FirstDifference(state.Settings, settings);
-            if (difference != null)
-            {
-                throw new RunFolderException(folder, $"the unfinished run there was started with a different {difference}; rerun with the same options to resume, or pass --overwrite to start over");
-            }
-            return state;
-        }
-        if (File.Exists(recordPath) && !options.Overwrite)
-        {
-            if (!options.Resume)
-            {
-                throw new RunFolderException(folder, "holds a finished run, which is never overwritten unless asked; pass --overwrite to replace it");
-            }
-            JsonObject record = (JsonObject)JsonNode.Parse(File.ReadAllBytes(recordPath))!;
-            string? difference = FirstDifference((JsonObject)record["settings"]!, settings);
-            if (difference != null)
-            {
-                throw new RunFolderException(folder, $"holds a finished run made with a different {difference}; pass --overwrite to replace it");
-            }
-            return Progress.FromRecord(record);
-        }
-
-        foreach (string name in present)
-        {
-            File.Delete(Path.Combine(folder, name));
-        }
-        return null;
-    }
-
-    /// <summary>The first top-level setting whose value differs, or null when they agree.</summary>
-    internal static string? FirstDifference(JsonObject stored, JsonObject current)
-    {
-        foreach (KeyValuePair<string, JsonNode?> pair in current)
-        {
-            if (!JsonNode.DeepEquals(pair.Value, stored[pair.Key]))
-            {
-                return pair.Key.Replace('_', ' ');
-            }
-        }
-        return stored.Count == current.Count ? null : "set of settings";
     }
 
     /// <summary>Everything that decides the output bytes: a run can only be resumed with the same.</summary>
@@ -259,23 +163,7 @@ public static class ExtractionRun
         {
             modelFiles.Add(new JsonObject { ["name"] = f.Name, ["bytes"] = f.Bytes, ["sha256"] = f.Sha256 });
         }
-        var features = new JsonArray();
-        foreach (FeatureRequest r in x.Features)
-        {
-            var feature = new JsonObject { ["spec"] = r.Spec };
-            switch (r)
-            {
-                case WordListFeature w:
-                    feature["words"] = new JsonArray([.. w.Words.Select(s => JsonValue.Create(s))]);
-                    break;
-                case CompletionFeature c:
-                    feature["candidates"] = new JsonArray([.. c.Candidates.Select(s => JsonValue.Create(s))]);
-                    break;
-                default:
-                    break;
-            }
-            features.Add(feature);
-        }
+        var features = new JsonArray([.. x.Features.Select(r => r.Describe())]);
         var files = new JsonArray();
         foreach (OutputFile o in outputs)
         {
@@ -325,6 +213,11 @@ public static class ExtractionRun
             ["outputs"] = files,
             ["strict"] = options.Strict,
         };
+        if (model.Precision == WeightPrecision.Integer8)
+        {
+            // The int8 path is part of the kernels of an int8 run (its sums are exact on every path, but say which ran).
+            settings.Insert(settings.IndexOf("kernels") + 1, "int8_kernels", KernelSelector.CurrentInt8.ToString());
+        }
         if (options.Shard is { } shard)
         {
             settings["shard"] = new JsonObject { ["index"] = shard.Index, ["count"] = shard.Count };
@@ -332,15 +225,10 @@ public static class ExtractionRun
         return settings;
     }
 
-    private static void Finish(string folder, Progress state, OutputFile[] outputs, JsonObject? shard)
+    private static void Finish(string folder, CommitPoint state, OutputFile[] outputs, RunShard? shard, long inputRows)
     {
-        JsonObject record = Record(state.Settings, new RunCounts(state.Consumed, state.Rows, state.Rejected, state.TruncatedRows, state.Tokens),
-            outputs.Select(o => (o.FileName, o.Descr, o.Output.Width)));
-        if (shard != null)
-        {
-            record["shard"] = shard;
-        }
-        WriteAtomically(Path.Combine(folder, RecordFile), record);
+        RunRecord.Create(state.Settings, new RunCounts(state.Consumed, state.Rows, state.Rejected, state.TruncatedRows, state.Tokens),
+            outputs.Select(o => (o.FileName, o.Descr, o.Output.Width)), shard, inputRows).Write(folder);
 
         double seconds = state.Sessions.Sum(s => s!["seconds"]!.GetValue<double>());
         var timing = new JsonObject
@@ -351,36 +239,8 @@ public static class ExtractionRun
             ["tokens_per_second"] = seconds > 0 ? Math.Round(state.Tokens / seconds, 1) : 0,
             ["peak_rss_bytes"] = Process.GetCurrentProcess().PeakWorkingSet64,
         };
-        WriteAtomically(Path.Combine(folder, TimingFile), timing);
-        File.Delete(Path.Combine(folder, ProgressFile));
-    }
-
-    /// <summary>A finished run's record.json: the settings, the counts and each file's shape.</summary>
-    internal static JsonObject Record(JsonObject settings, RunCounts counts, IEnumerable<(string File, string DType, int Width)> files)
-    {
-        var shapes = new JsonArray();
-        foreach ((string file, string dtype, int width) in files)
-        {
-            shapes.Add(new JsonObject
-            {
-                ["file"] = file,
-                ["dtype"] = dtype,
-                ["shape"] = new JsonArray(counts.Accepted, width),
-            });
-        }
-        return new JsonObject
-        {
-            ["settings"] = settings.DeepClone(),
-            ["counts"] = new JsonObject
-            {
-                ["read"] = counts.Read,
-                ["accepted"] = counts.Accepted,
-                ["rejected"] = counts.Rejected,
-                ["truncated_rows"] = counts.TruncatedRows,
-                ["tokens"] = counts.Tokens,
-            },
-            ["files"] = shapes,
-        };
+        AtomicFile.WriteJson(Path.Combine(folder, RunFolder.TimingFile), timing);
+        File.Delete(Path.Combine(folder, RunFolder.ProgressFile));
     }
 
     private static void UpdateSession(JsonObject session, TimeSpan elapsed, long rows, long tokens)
@@ -396,24 +256,6 @@ public static class ExtractionRun
 
     private static string Timestamp(DateTimeOffset t) => t.ToString("yyyy-MM-ddTHH:mm:ss.fffZ", CultureInfo.InvariantCulture);
 
-    private static void WriteProgress(string folder, Progress state) => WriteAtomically(Path.Combine(folder, ProgressFile), state.ToJson());
-
-    /// <summary>Writes a JSON file by way of a temporary file and a rename, so a reader sees the old or the new file whole.</summary>
-    internal static void WriteAtomically(string path, JsonNode node)
-    {
-        string temporary = path + ".tmp";
-        using (var file = new FileStream(temporary, FileMode.Create, FileAccess.Write))
-        {
-            using (var writer = new Utf8JsonWriter(file, new JsonWriterOptions { Indented = true }))
-            {
-                node.WriteTo(writer, Indented);
-            }
-            file.WriteByte((byte)'\n');
-            file.Flush(flushToDisk: true);
-        }
-        File.Move(temporary, path, overwrite: true);
-    }
-
     private static string Sha256(string path)
     {
         using FileStream file = File.OpenRead(path);
@@ -421,7 +263,7 @@ public static class ExtractionRun
     }
 
     /// <summary>Turns the extractor's per-batch counts into run progress.</summary>
-    private sealed class BatchReporter(IProgress<RunProgress> progress, Progress state, TextInputReader reader, Stopwatch clock)
+    private sealed class BatchReporter(IProgress<RunProgress> progress, CommitPoint state, TextInputReader reader, Stopwatch clock)
         : IProgress<ExtractionProgress>
     {
         private readonly long _rowsBefore = state.Rows;
@@ -446,9 +288,7 @@ public static class ExtractionRun
 
         public bool Half { get; } = output.Element == FeatureElement.Real && precision == FeaturePrecision.Binary16;
 
-        public string Descr => Output.Element == FeatureElement.TokenId ? "<i4" : Half ? "<f2" : "<f4";
-
-        public int ElementBytes => Half ? 2 : 4;
+        public string Descr => Output.Element == FeatureElement.TokenId ? NpyFormat.Int32 : Half ? NpyFormat.Float16 : NpyFormat.Float32;
 
         public string FileName => Output.Name + ".npy";
     }
@@ -462,7 +302,7 @@ public static class ExtractionRun
         private readonly FileStream _rejects;
         private bool _disposed;
 
-        public RunFiles(string folder, OutputFile[] outputs, Progress state, bool fresh)
+        public RunFiles(string folder, OutputFile[] outputs, CommitPoint state, bool fresh)
         {
             _outputs = outputs;
             _arrays = new NpyAppender[outputs.Length];
@@ -470,11 +310,11 @@ public static class ExtractionRun
             {
                 string path = Path.Combine(folder, outputs[i].FileName);
                 _arrays[i] = fresh
-                    ? NpyAppender.Create(path, outputs[i].Descr, outputs[i].Output.Width, outputs[i].ElementBytes)
-                    : NpyAppender.Reopen(path, outputs[i].Descr, outputs[i].Output.Width, outputs[i].ElementBytes, state.Rows);
+                    ? NpyAppender.Create(path, outputs[i].Descr, outputs[i].Output.Width)
+                    : NpyAppender.Reopen(path, outputs[i].Descr, outputs[i].Output.Width, state.Rows);
             }
-            _rows = OpenTable(Path.Combine(folder, RowsFile), fresh, state.RowsBytes, ["row", "line", "id", "label", "tokens", "truncated_tokens"]);
-            _rejects = OpenTable(Path.Combine(folder, RejectsFile), fresh, state.RejectsBytes, ["line", "reason"]);
+            _rows = RunTable.Rows.Open(folder, fresh, state.RowsBytes);
+            _rejects = RunTable.Rejects.Open(folder, fresh, state.RejectsBytes);
             if (fresh)
             {
                 state.RowsBytes = _rows.Length;
@@ -508,7 +348,7 @@ public static class ExtractionRun
                 _arrays[o].Append(block);
             }
 
-            AppendTable(_rows, w =>
+            RunTable.Append(_rows, w =>
             {
                 for (int i = 0; i < rows.Length; i++)
                 {
@@ -522,7 +362,7 @@ public static class ExtractionRun
                     w.EndRecord();
                 }
             });
-            AppendTable(_rejects, w =>
+            RunTable.Append(_rejects, w =>
             {
                 foreach (InputRecord r in rejected)
                 {
@@ -533,7 +373,7 @@ public static class ExtractionRun
             });
         }
 
-        public void Commit(Progress state)
+        public void Commit(CommitPoint state)
         {
             foreach (NpyAppender a in _arrays)
             {
@@ -560,42 +400,6 @@ public static class ExtractionRun
             _rejects?.Dispose();
         }
 
-        private static FileStream OpenTable(string path, bool fresh, long committedBytes, string[] header)
-        {
-            if (fresh)
-            {
-                var created = new FileStream(path, FileMode.Create, FileAccess.ReadWrite, FileShare.Read);
-                AppendTable(created, w =>
-                {
-                    foreach (string h in header)
-                    {
-                        w.WriteField(h);
-                    }
-                    w.EndRecord();
-                });
-                return created;
-            }
-            var file = new FileStream(path, FileMode.Open, FileAccess.ReadWrite, FileShare.Read);
-            if (file.Length < committedBytes)
-            {
-                file.Dispose();
-                throw new IOException($"{path} is shorter than its last commit: the run folder was changed since it was written. Start over with --overwrite.");
-            }
-            file.SetLength(committedBytes);
-            file.Seek(0, SeekOrigin.End);
-            return file;
-        }
-
-        private static void AppendTable(FileStream file, Action<CsvWriter> write)
-        {
-            using var buffer = new MemoryStream();
-            using (CsvWriter w = CsvWriter.Create(buffer, CsvOptions, leaveOpen: true))
-            {
-                write(w);
-            }
-            buffer.WriteTo(file);
-        }
-
         private static void WriteLittleEndian<T>(ReadOnlySpan<T> values, Span<byte> destination) where T : unmanaged
         {
             Debug.Assert(BitConverter.IsLittleEndian);
@@ -607,85 +411,5 @@ public static class ExtractionRun
             Span<Half> halves = System.Runtime.InteropServices.MemoryMarshal.Cast<byte, Half>(destination);
             System.Numerics.Tensors.TensorPrimitives.ConvertToHalf(values, halves);
         }
-    }
-
-    /// <summary>The state of a run at its last commit.</summary>
-    private sealed class Progress
-    {
-        public required JsonObject Settings { get; init; }
-
-        public long Consumed { get; set; }
-
-        public long Rows { get; set; }
-
-        public long Rejected { get; set; }
-
-        public long TruncatedRows { get; set; }
-
-        public long Tokens { get; set; }
-
-        public long RowsBytes { get; set; }
-
-        public long RejectsBytes { get; set; }
-
-        public JsonArray Sessions { get; init; } = [];
-
-        public bool Complete { get; init; }
-
-        public static Progress Load(string path)
-        {
-            JsonObject o;
-            try
-            {
-                o = (JsonObject)JsonNode.Parse(File.ReadAllBytes(path))!;
-            }
-            catch (Exception e) when (e is JsonException or InvalidCastException or NullReferenceException)
-            {
-                throw new RunFolderException(Path.GetDirectoryName(path)!, $"{ProgressFile} is unreadable ({e.Message}); pass --overwrite to start over");
-            }
-            return new Progress
-            {
-                Settings = (JsonObject)o["settings"]!.DeepClone(),
-                Consumed = o["consumed_records"]!.GetValue<long>(),
-                Rows = o["rows"]!.GetValue<long>(),
-                Rejected = o["rejected"]!.GetValue<long>(),
-                TruncatedRows = o["truncated_rows"]!.GetValue<long>(),
-                Tokens = o["tokens"]!.GetValue<long>(),
-                RowsBytes = o["rows_bytes"]!.GetValue<long>(),
-                RejectsBytes = o["rejects_bytes"]!.GetValue<long>(),
-                Sessions = (JsonArray)o["sessions"]!.DeepClone(),
-            };
-        }
-
-        public static Progress FromRecord(JsonObject record)
-        {
-            RunCounts counts = RunCounts.FromRecord(record["counts"]!);
-            return new Progress
-            {
-                Settings = (JsonObject)record["settings"]!.DeepClone(),
-                Consumed = counts.Read,
-                Rows = counts.Accepted,
-                Rejected = counts.Rejected,
-                TruncatedRows = counts.TruncatedRows,
-                Tokens = counts.Tokens,
-                Complete = true,
-            };
-        }
-
-        public JsonObject ToJson() => new()
-        {
-            ["settings"] = Settings.DeepClone(),
-            ["consumed_records"] = Consumed,
-            ["rows"] = Rows,
-            ["rejected"] = Rejected,
-            ["truncated_rows"] = TruncatedRows,
-            ["tokens"] = Tokens,
-            ["rows_bytes"] = RowsBytes,
-            ["rejects_bytes"] = RejectsBytes,
-            ["sessions"] = Sessions.DeepClone(),
-        };
-
-        public RunSummary Summary(bool alreadyComplete, TimeSpan elapsed) =>
-            new(Consumed, Rows, Rejected, TruncatedRows, Tokens, 0, alreadyComplete, elapsed);
     }
 }

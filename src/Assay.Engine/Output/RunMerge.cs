@@ -17,16 +17,13 @@ public sealed record MergeSummary(int Shards, long Rows, long Rejected, int File
 /// <summary>
 /// Puts the run folders of one extraction's shards (<see cref="RunOptions.Shard"/>) back together into one run folder
 /// whose .npy files, rows.csv, rejects.csv and record.json are byte-identical to those of a single run of the same
-/// extraction; <see cref="MergeFile"/> says it was merged and from which folders. Everything is checked before anything
+/// extraction; <see cref="RunFolder.MergeFile"/> says it was merged and from which folders. Everything is checked before anything
 /// is written — the shards share every setting (model files and hashes, input file and hash, prompt, features, options),
 /// all n are present exactly once, each is finished and its files are whole — and the folder appears only complete
 /// (it is written beside the target and renamed).
 /// </summary>
 public static class RunMerge
 {
-    /// <summary>The merge's provenance: when, and from which shard folders (whose records' hashes it gives).</summary>
-    public const string MergeFile = "merge.json";
-
     private const int RowBlockBytes = 4 << 20;
 
     /// <summary>Merges <paramref name="shardFolders"/> (in any order) into <paramref name="outputFolder"/>.</summary>
@@ -64,12 +61,12 @@ public static class RunMerge
                 MergeArray(shards, file, dtype, width, rows, Path.Combine(staging, file), progress, done);
                 done += rows;
             }
-            MergeRowTable(shards, rows, Path.Combine(staging, ExtractionRun.RowsFile));
-            File.Copy(Path.Combine(first.Folder, ExtractionRun.RejectsFile), Path.Combine(staging, ExtractionRun.RejectsFile));
+            MergeRowTable(shards, rows, Path.Combine(staging, RunFolder.RowsFile));
+            File.Copy(Path.Combine(first.Folder, RunFolder.RejectsFile), Path.Combine(staging, RunFolder.RejectsFile));
 
             var counts = new RunCounts(first.Read, rows, first.Rejected, shards.Sum(s => s.Counts.TruncatedRows), shards.Sum(s => s.Counts.Tokens));
-            ExtractionRun.WriteAtomically(Path.Combine(staging, ExtractionRun.RecordFile), ExtractionRun.Record(first.Settings, counts, first.Files));
-            ExtractionRun.WriteAtomically(Path.Combine(staging, MergeFile), Provenance(shards));
+            RunRecord.Create(first.Settings, counts, first.Files).Write(staging);
+            AtomicFile.WriteJson(Path.Combine(staging, RunFolder.MergeFile), Provenance(shards));
 
             if (Directory.Exists(outputFolder))
             {
@@ -97,7 +94,7 @@ public static class RunMerge
             {
                 throw new RunFolderException(s.Folder, $"is shard {s.Index}/{s.Count}, but {first.Folder} is one of {count} shards: they are not shards of one extraction");
             }
-            string? difference = ExtractionRun.FirstDifference(first.Settings, s.Settings);
+            string? difference = RunRecord.FirstDifference(first.Settings, s.Settings);
             if (difference != null)
             {
                 throw new RunFolderException(s.Folder, $"was made with a different {difference} than {first.Folder}: shards of one extraction share the model, input, prompt, features and options");
@@ -131,7 +128,7 @@ public static class RunMerge
             foreach ((string file, string dtype, int width) in s.Files)
             {
                 string path = Path.Combine(s.Folder, file);
-                long expected = NpyAppender.HeaderBytes + (s.Accepted * width * ElementBytes(path, dtype));
+                long expected = NpyFormat.HeaderBytes + (s.Accepted * width * ElementBytes(path, dtype));
                 long actual = File.Exists(path) ? new FileInfo(path).Length : -1;
                 if (actual != expected)
                 {
@@ -139,7 +136,7 @@ public static class RunMerge
                         $"{file} is {(actual < 0 ? "missing" : $"{actual} bytes")}; its record says {s.Accepted} rows of {width} {dtype}, {expected} bytes: the shard folder was changed"));
                 }
             }
-            foreach (string table in new[] { ExtractionRun.RowsFile, ExtractionRun.RejectsFile })
+            foreach (string table in new[] { RunFolder.RowsFile, RunFolder.RejectsFile })
             {
                 if (!File.Exists(Path.Combine(s.Folder, table)))
                 {
@@ -150,12 +147,8 @@ public static class RunMerge
         return shards;
     }
 
-    private static int ElementBytes(string path, string dtype) => dtype switch
-    {
-        "<f4" or "<i4" => 4,
-        "<f2" => 2,
-        _ => throw new RunFolderException(Path.GetDirectoryName(path)!, $"{Path.GetFileName(path)} has dtype '{dtype}' in its record; expected <f4, <f2 or <i4"),
-    };
+    private static int ElementBytes(string path, string dtype) => NpyFormat.ElementBytes(dtype) is int bytes and > 0 ? bytes
+        : throw new RunFolderException(Path.GetDirectoryName(path)!, $"{Path.GetFileName(path)} has dtype '{dtype}' in its record; expected {NpyFormat.Float32}, {NpyFormat.Float16} or {NpyFormat.Int32}");
 
     /// <summary>Row i of the merged array is row i div n of shard (i mod n) + 1.</summary>
     private static void MergeArray(ShardRun[] shards, string file, string dtype, int width, long rows, string target,
@@ -168,9 +161,9 @@ public static class RunMerge
             for (int s = 0; s < shards.Length; s++)
             {
                 sources[s] = new FileStream(Path.Combine(shards[s].Folder, file), FileMode.Open, FileAccess.Read, FileShare.Read, 1 << 20, FileOptions.SequentialScan);
-                sources[s].Seek(NpyAppender.HeaderBytes, SeekOrigin.Begin);
+                sources[s].Seek(NpyFormat.HeaderBytes, SeekOrigin.Begin);
             }
-            using NpyAppender merged = NpyAppender.Create(target, dtype, width, rowBytes / width);
+            using NpyAppender merged = NpyAppender.Create(target, dtype, width);
             int blockRows = Math.Max(1, RowBlockBytes / Math.Max(1, rowBytes));
             byte[] block = new byte[(long)blockRows * rowBytes];
             for (long start = 0; start < rows; start += blockRows)
@@ -204,13 +197,13 @@ public static class RunMerge
             byte[]? header = null;
             for (int s = 0; s < shards.Length; s++)
             {
-                string path = Path.Combine(shards[s].Folder, ExtractionRun.RowsFile);
+                string path = Path.Combine(shards[s].Folder, RunFolder.RowsFile);
                 streams[s] = File.OpenRead(path);
                 byte[] h = HeaderLine(streams[s]);
                 readers[s] = CsvReader.Create(streams[s], new CsvReaderOptions { HasHeader = false, MaxRecordSize = 4 << 20 }, leaveOpen: true);
                 if (header != null && !header.AsSpan().SequenceEqual(h))
                 {
-                    throw new RunFolderException(shards[s].Folder, $"{ExtractionRun.RowsFile} has another header than {shards[0].Folder}'s");
+                    throw new RunFolderException(shards[s].Folder, $"{RunFolder.RowsFile} has another header than {shards[0].Folder}'s");
                 }
                 header = h;
             }
@@ -223,7 +216,7 @@ public static class RunMerge
                 string expected = i.ToString(CultureInfo.InvariantCulture);
                 if (!r.Read() || r.GetString(0) != expected)
                 {
-                    throw new RunFolderException(shards[s].Folder, $"{ExtractionRun.RowsFile} does not list row {expected} where shard {s + 1}/{shards.Length} must: the shard folder was changed");
+                    throw new RunFolderException(shards[s].Folder, $"{RunFolder.RowsFile} does not list row {expected} where shard {s + 1}/{shards.Length} must: the shard folder was changed");
                 }
                 output.Write(r.RawRecord);
                 output.WriteByte((byte)'\n');
@@ -232,7 +225,7 @@ public static class RunMerge
             {
                 if (readers[s].Read())
                 {
-                    throw new RunFolderException(shards[s].Folder, $"{ExtractionRun.RowsFile} has more rows than its record: the shard folder was changed");
+                    throw new RunFolderException(shards[s].Folder, $"{RunFolder.RowsFile} has more rows than its record: the shard folder was changed");
                 }
             }
         }
@@ -321,50 +314,29 @@ public static class RunMerge
             {
                 throw new RunFolderException(folder, "no such shard folder");
             }
-            if (File.Exists(Path.Combine(folder, ExtractionRun.ProgressFile)))
+            if (File.Exists(Path.Combine(folder, RunFolder.ProgressFile)))
             {
-                throw new RunFolderException(folder, $"holds an unfinished shard ({ExtractionRun.ProgressFile} is there); finish it by rerunning its assay extract command with --resume, then merge");
+                throw new RunFolderException(folder, $"holds an unfinished shard ({RunFolder.ProgressFile} is there); finish it by rerunning its assay extract command with --resume, then merge");
             }
-            string recordPath = Path.Combine(folder, ExtractionRun.RecordFile);
-            if (!File.Exists(recordPath))
+            RunRecord record = RunRecord.Read(folder);
+            var settings = (JsonObject)record.Settings.DeepClone();
+            if (settings["shard"] is null || record.Shard is not { } shard)
             {
-                throw new RunFolderException(folder, $"holds no finished run (no {ExtractionRun.RecordFile})");
+                throw new RunFolderException(folder, "holds an unsharded run; only the folders of assay extract --shard k/n runs are merged");
             }
-            byte[] bytes = File.ReadAllBytes(recordPath);
-            try
+            settings.Remove("shard");
+            return new ShardRun
             {
-                var record = (JsonObject)JsonNode.Parse(bytes)!;
-                var settings = (JsonObject)record["settings"]!.DeepClone();
-                if (settings["shard"] is null || record["shard"] is not JsonObject shard)
-                {
-                    throw new RunFolderException(folder, "holds an unsharded run; only the folders of assay extract --shard k/n runs are merged");
-                }
-                settings.Remove("shard");
-                int index = shard["index"]!.GetValue<int>(), count = shard["count"]!.GetValue<int>();
-                if (count < 2 || index < 1 || index > count)
-                {
-                    throw new RunFolderException(folder, string.Create(CultureInfo.InvariantCulture, $"{ExtractionRun.RecordFile} names shard {index}/{count}, which cannot be"));
-                }
-                return new ShardRun
-                {
-                    Folder = folder,
-                    Settings = settings,
-                    Index = index,
-                    Count = count,
-                    InputRows = shard["input_rows"]!.GetValue<long>(),
-                    Counts = RunCounts.FromRecord(record["counts"]!),
-                    Files = record["files"]!.AsArray()
-                        .Select(f => (f!["file"]!.GetValue<string>(), f["dtype"]!.GetValue<string>(), f["shape"]![1]!.GetValue<int>()))
-                        .ToArray(),
-                    RecordSha256 = Convert.ToHexStringLower(SHA256.HashData(bytes)),
-                    Seconds = ReadSeconds(Path.Combine(folder, ExtractionRun.TimingFile)),
-                };
-            }
-            catch (Exception e) when (e is JsonException or InvalidCastException or InvalidOperationException or NullReferenceException
-                or FormatException or IndexOutOfRangeException or ArgumentOutOfRangeException)
-            {
-                throw new RunFolderException(folder, $"{ExtractionRun.RecordFile} is unreadable ({e.Message})");
-            }
+                Folder = folder,
+                Settings = settings,
+                Index = shard.Index,
+                Count = shard.Count,
+                InputRows = record.ShardInputRows,
+                Counts = record.Counts,
+                Files = [.. record.Files.Select(f => (f.File, f.DType, f.Width))],
+                RecordSha256 = record.Sha256,
+                Seconds = ReadSeconds(Path.Combine(folder, RunFolder.TimingFile)),
+            };
         }
 
         private static double? ReadSeconds(string timingPath)

@@ -110,12 +110,3 @@ public sealed class RunFolderException : InvalidInputException
     {
     }
 }
-
-/// <summary>The counts a record holds.</summary>
-internal readonly record struct RunCounts(long Read, long Accepted, long Rejected, long TruncatedRows, long Tokens)
-{
-    /// <summary>The counts of a record's "counts" object, as <see cref="ExtractionRun.Record"/> writes them.</summary>
-    public static RunCounts FromRecord(System.Text.Json.Nodes.JsonNode counts) => new(
-        counts["read"]!.GetValue<long>(), counts["accepted"]!.GetValue<long>(), counts["rejected"]!.GetValue<long>(),
-        counts["truncated_rows"]!.GetValue<long>(), counts["tokens"]!.GetValue<long>());
-}

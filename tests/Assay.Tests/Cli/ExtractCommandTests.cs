@@ -55,7 +55,7 @@ public sealed class ExtractCommandTests
         using var temp = new TempFolder();
         string input = ExtractionRunTests.WriteInput(temp, 12);
         Assert.Equal(0, ExtractCommand.Run(Request(input, temp.File("run"), weights: "bfloat16"), TextWriter.Null, TextWriter.Null, CancellationToken.None));
-        using (var record = System.Text.Json.JsonDocument.Parse(File.ReadAllBytes(Path.Combine(temp.File("run"), ExtractionRun.RecordFile))))
+        using (var record = System.Text.Json.JsonDocument.Parse(File.ReadAllBytes(Path.Combine(temp.File("run"), RunFolder.RecordFile))))
         {
             Assert.Equal("bfloat16", record.RootElement.GetProperty("settings").GetProperty("model").GetProperty("weights").GetString());
         }
@@ -104,7 +104,7 @@ public sealed class ExtractCommandTests
         {
             string[] args = attempt == 0 ? [.. common, "--out", run] : [.. common, "--out", run, "--resume"];
             KillPoint point = attempt == 0 ? new KillPoint(null, TimeSpan.FromMilliseconds(150))
-                : new KillPoint(Path.Combine(run, ExtractionRun.ProgressFile), TimeSpan.FromMilliseconds(rng.Next(0, 40)), targets[attempt - 1]);
+                : new KillPoint(Path.Combine(run, RunFolder.ProgressFile), TimeSpan.FromMilliseconds(rng.Next(0, 40)), targets[attempt - 1]);
             if (RunChild(args, point).Killed)
             {
                 killed++;

@@ -34,7 +34,7 @@ public sealed class WriteFailureDrillTests
             Assert.Contains("No space left on device", stderr, StringComparison.Ordinal);
             Assert.Contains("--resume", stderr, StringComparison.Ordinal);
             Assert.DoesNotContain("   at ", stderr, StringComparison.Ordinal);   // no stack trace
-            Assert.True(File.Exists(Path.Combine(run, ExtractionRun.ProgressFile)));
+            Assert.True(File.Exists(Path.Combine(run, RunFolder.ProgressFile)));
 
             Mount($"-o remount,size=64m {disk}");
             Assert.Equal(0, Child([.. common, "--out", run, "--resume"]).ExitCode);

@@ -1,6 +1,7 @@
 using Assay.Features;
 using Assay.Model;
 using Assay.Tests.Support;
+using Assay.Weights;
 
 namespace Assay.Tests.Features;
 

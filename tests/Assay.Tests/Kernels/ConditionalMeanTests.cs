@@ -1,7 +1,8 @@
 using Assay.Fixtures;
 using Assay.Kernels;
 using Assay.Model;
-using K = Assay.Kernels.Kernels;
+using K = Assay.Kernels.CpuKernels;
+using Assay.Weights;
 
 namespace Assay.Tests.Kernels;
 

@@ -3,7 +3,7 @@ using Assay.Config;
 using Assay.Fixtures;
 using Assay.Kernels;
 using Assay.Tests.Support;
-using K = Assay.Kernels.Kernels;
+using K = Assay.Kernels.CpuKernels;
 
 namespace Assay.Tests.Kernels;
 

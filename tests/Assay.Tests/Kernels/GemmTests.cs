@@ -2,7 +2,8 @@ using Assay.Fixtures;
 using Assay.Config;
 using Assay.Kernels;
 using Assay.Model;
-using K = Assay.Kernels.Kernels;
+using K = Assay.Kernels.CpuKernels;
+using Assay.Weights;
 
 namespace Assay.Tests.Kernels;
 
@@ -11,6 +12,9 @@ public sealed class GemmTests
 {
     public static TheoryData<KernelVariant> Variants =>
         [.. Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported)];
+
+    public static TheoryData<Int8Kernel> Int8Kernels =>
+        [.. Enum.GetValues<Int8Kernel>().Where(KernelSelector.IsSupported)];
 
     private static readonly int[] Ms = [0, 1, 2, 3, 5, 6, 7, 12, 13, 48, 49, 257];
     private static readonly int[] Ns = [1, 3, 16, 31, 63, 64, 65, 130, 257];
@@ -111,17 +115,20 @@ public sealed class GemmTests
         PackedMatrix packed = PackedMatrix.FromRowMajor(b, k, n, bias, precision);
         Assert.Equal(precision, packed.Precision);
         float[] scalar = new float[m * n];
-        K.Gemm(a, m, k, packed, scalar, n, accumulate: false, KernelVariant.Scalar);
+        K.Gemm(a, m, k, packed, scalar, n, accumulate: false, KernelVariant.Scalar, int8: Int8Kernel.Scalar);
         float[] activated = (float[])scalar.Clone();
         K.Activate(activated, Activation.GeluTanh);
         foreach (KernelVariant variant in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
         {
-            float[] c = new float[m * n];
-            K.Gemm(a, m, k, packed, c, n, accumulate: false, variant);
-            Assert.Equal(scalar, c);
-            float[] fused = new float[m * n];
-            K.Gemm(a, m, k, packed, fused, n, accumulate: false, variant, epilogue: Activation.GeluTanh);
-            Assert.Equal(activated, fused);
+            foreach (Int8Kernel integer in Enum.GetValues<Int8Kernel>().Where(KernelSelector.IsSupported))
+            {
+                float[] c = new float[m * n];
+                K.Gemm(a, m, k, packed, c, n, accumulate: false, variant, int8: integer);
+                Assert.Equal(scalar, c);
+                float[] fused = new float[m * n];
+                K.Gemm(a, m, k, packed, fused, n, accumulate: false, variant, epilogue: Activation.GeluTanh, int8: integer);
+                Assert.Equal(activated, fused);
+            }
         }
     }
 
@@ -159,8 +166,8 @@ public sealed class GemmTests
     }
 
     [Theory]
-    [MemberData(nameof(Variants))]
-    public void Int8_panels_give_the_product_of_the_quantized_operands(KernelVariant variant)
+    [MemberData(nameof(Int8Kernels))]
+    public void Int8_panels_give_the_product_of_the_quantized_operands(Int8Kernel variant)
     {
         // Reference (float64): Σ_k (t_r·qa_rk)·(s_n·q_kn) + bias, with the operands quantized here in scalar code:
         // symmetric per row of A and per column of B, largest magnitude → 127, round half to even (common practice).
@@ -171,7 +178,7 @@ public sealed class GemmTests
             float[] a = Random(ref rng, m * k), b = Random(ref rng, k * n), bias = Random(ref rng, n);
             float[] c = Random(ref rng, m * n);
             float[] c0 = (float[])c.Clone();
-            K.Gemm(a, m, k, PackedMatrix.FromRowMajor(b, k, n, bias, WeightPrecision.Integer8), c, n, accumulate: true, variant);
+            K.Gemm(a, m, k, PackedMatrix.FromRowMajor(b, k, n, bias, WeightPrecision.Integer8), c, n, accumulate: true, KernelVariant.Scalar, int8: variant);
             (float[] qa, float[] t) = Quantize(a, m, k, byRow: true);
             (float[] qb, float[] s) = Quantize(b, k, n, byRow: false);
             for (int r = 0; r < m; r++)

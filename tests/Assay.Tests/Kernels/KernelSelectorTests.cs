@@ -8,19 +8,46 @@ public sealed class KernelSelectorTests
     public void Picks_the_widest_supported_path_by_default()
     {
         KernelVariant expected = KernelSelector.IsSupported(KernelVariant.Vector512) ? KernelVariant.Vector512
-            : KernelSelector.IsSupported(KernelVariant.Vector256) ? KernelVariant.Vector256 : KernelVariant.Scalar;
-        Assert.Equal(expected, KernelSelector.Select(null));
+            : KernelSelector.IsSupported(KernelVariant.Vector256) ? KernelVariant.Vector256
+            : KernelSelector.IsSupported(KernelVariant.Vector128) ? KernelVariant.Vector128 : KernelVariant.Scalar;
+        Int8Kernel int8 = expected >= KernelVariant.Vector256 && System.Runtime.Intrinsics.X86.AvxVnni.IsSupported
+            ? Int8Kernel.AvxVnni : Int8Kernel.Scalar;
+        Assert.Equal((expected, int8), KernelSelector.Select(null));
     }
 
     [Theory]
-    [InlineData("scalar", KernelVariant.Scalar)]
-    [InlineData("SCALAR", KernelVariant.Scalar)]
-    public void Honours_a_forced_variant(string value, KernelVariant expected) =>
-        Assert.Equal(expected, KernelSelector.Select(value));
+    [InlineData("scalar", KernelVariant.Scalar, Int8Kernel.Scalar)]
+    [InlineData("SCALAR", KernelVariant.Scalar, Int8Kernel.Scalar)]
+    [InlineData("scalar:scalar", KernelVariant.Scalar, Int8Kernel.Scalar)]
+    [InlineData("vector128", KernelVariant.Vector128, Int8Kernel.Scalar)]
+    public void Honours_a_forced_variant(string value, KernelVariant expected, Int8Kernel integerPath)
+    {
+        Assert.Equal((expected, integerPath), KernelSelector.Select(value));
+    }
+
+    [Fact]
+    public void Forces_the_int8_path_independently_of_the_width()
+    {
+        KernelVariant widest = KernelSelector.Select(null).Float;
+        Assert.Equal((widest, Int8Kernel.Scalar), KernelSelector.Select(widest + ":scalar"));
+        if (KernelSelector.IsSupported(Int8Kernel.AvxVnni))
+        {
+            Assert.Equal((KernelVariant.Scalar, Int8Kernel.AvxVnni), KernelSelector.Select("scalar:avxvnni"));
+        }
+        else
+        {
+            var e = Assert.Throws<InvalidOperationException>(() => KernelSelector.Select("scalar:avxvnni"));
+            Assert.Contains("does not have AvxVnni", e.Message, StringComparison.Ordinal);
+        }
+    }
 
     [Theory]
     [InlineData("avx9000")]
     [InlineData("7")]
+    [InlineData("1")]
+    [InlineData("vector256:")]
+    [InlineData("vector256:vnni512")]
+    [InlineData("vector256:1")]
     public void Refuses_an_unknown_variant(string value)
     {
         var e = Assert.Throws<InvalidOperationException>(() => KernelSelector.Select(value));

@@ -4,6 +4,7 @@ using Assay.Kernels;
 using Assay.Model;
 using Assay.Tests.Support;
 using Xunit.Abstractions;
+using Assay.Weights;
 
 namespace Assay.Tests.Model;
 

@@ -3,6 +3,7 @@ using Assay.Fixtures;
 using Assay.Model;
 using Assay.Tests.Support;
 using Xunit.Abstractions;
+using Assay.Weights;
 
 namespace Assay.Tests.Model;
 

@@ -3,6 +3,7 @@ using Assay.Model;
 using Assay.Tests.Features;
 using Assay.Tests.Support;
 using Xunit.Abstractions;
+using Assay.Weights;
 
 namespace Assay.Tests.Model;
 

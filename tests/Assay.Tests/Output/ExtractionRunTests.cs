@@ -48,7 +48,7 @@ public sealed class ExtractionRunTests
 
     /// <summary>Every file of a run folder but timing.json, which records wall-clock times.</summary>
     internal static Dictionary<string, byte[]> Bytes(string folder) => Directory.GetFiles(folder)
-        .Where(f => Path.GetFileName(f) != ExtractionRun.TimingFile)
+        .Where(f => Path.GetFileName(f) != RunFolder.TimingFile)
         .ToDictionary(f => Path.GetFileName(f), File.ReadAllBytes);
 
     [Fact]
@@ -78,22 +78,22 @@ public sealed class ExtractionRunTests
         }
 
         // The row table follows input order; the rejects file names lines and reasons; the counts add up.
-        string[] rows = File.ReadAllLines(Path.Combine(run, ExtractionRun.RowsFile));
+        string[] rows = File.ReadAllLines(Path.Combine(run, RunFolder.RowsFile));
         Assert.Equal("row,line,id,label,tokens,truncated_tokens", rows[0]);
         Assert.Equal(Enumerable.Range(0, 40).Select(i => $"t{i}"), rows.Skip(1).Select(r => r.Split(',')[2]));
         Assert.StartsWith("0,1,t0,0,", rows[1], StringComparison.Ordinal);
         Assert.StartsWith("4,6,t4,0,", rows[5], StringComparison.Ordinal);   // line 5 is the broken one
-        string[] rejects = File.ReadAllLines(Path.Combine(run, ExtractionRun.RejectsFile));
+        string[] rejects = File.ReadAllLines(Path.Combine(run, RunFolder.RejectsFile));
         Assert.Equal(3, rejects.Length);
         Assert.StartsWith("5,", rejects[1], StringComparison.Ordinal);
         Assert.Contains("no \"\"text\"\" field", rejects[2], StringComparison.Ordinal);
 
-        using JsonDocument record = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(run, ExtractionRun.RecordFile)));
+        using JsonDocument record = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(run, RunFolder.RecordFile)));
         JsonElement counts = record.RootElement.GetProperty("counts");
         Assert.Equal(counts.GetProperty("read").GetInt64(), counts.GetProperty("accepted").GetInt64() + counts.GetProperty("rejected").GetInt64());
         Assert.Equal("{text} It is a kind of", record.RootElement.GetProperty("settings").GetProperty("prompt").GetString());
-        Assert.False(File.Exists(Path.Combine(run, ExtractionRun.ProgressFile)));
-        using JsonDocument timing = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(run, ExtractionRun.TimingFile)));
+        Assert.False(File.Exists(Path.Combine(run, RunFolder.ProgressFile)));
+        using JsonDocument timing = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(run, RunFolder.TimingFile)));
         Assert.True(timing.RootElement.GetProperty("peak_rss_bytes").GetInt64() > 0);
     }
 
@@ -167,14 +167,14 @@ public sealed class ExtractionRunTests
             Assert.ThrowsAny<OperationCanceledException>(() =>
                 ExtractionRun.Execute(m, input, run, Options() with { Resume = sessions > 0 }, progress, cancel.Token));
             sessions++;
-            Assert.True(File.Exists(Path.Combine(run, ExtractionRun.ProgressFile)));
+            Assert.True(File.Exists(Path.Combine(run, RunFolder.ProgressFile)));
         }
         RunSummary s = ExtractionRun.Execute(m, input, run, Options() with { Resume = true });
         Assert.True(s.ResumedAt > 0);
         Dictionary<string, byte[]> resumed = Bytes(run);
         Assert.Equal(whole.Keys.Order(), resumed.Keys.Order());
         Assert.All(whole, f => Assert.True(f.Value.AsSpan().SequenceEqual(resumed[f.Key]), $"{f.Key} differs after resuming"));
-        using JsonDocument timing = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(run, ExtractionRun.TimingFile)));
+        using JsonDocument timing = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(run, RunFolder.TimingFile)));
         Assert.Equal(5, timing.RootElement.GetProperty("sessions").GetArrayLength());
     }
 

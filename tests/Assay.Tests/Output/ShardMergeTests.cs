@@ -43,7 +43,7 @@ public sealed class ShardMergeTests
     private static void AssertSameBytes(string expectedFolder, string actualFolder)
     {
         Dictionary<string, byte[]> expected = ExtractionRunTests.Bytes(expectedFolder), actual = ExtractionRunTests.Bytes(actualFolder);
-        actual.Remove(RunMerge.MergeFile);
+        actual.Remove(RunFolder.MergeFile);
         Assert.Equal(expected.Keys.Order(), actual.Keys.Order());
         Assert.All(expected, f => Assert.True(f.Value.AsSpan().SequenceEqual(actual[f.Key]), $"{f.Key} differs"));
     }
@@ -64,7 +64,7 @@ public sealed class ShardMergeTests
         var seen = new List<long>();
         for (int k = 1; k <= n; k++)
         {
-            long[] rows = File.ReadAllLines(Path.Combine(shards[k - 1], ExtractionRun.RowsFile)).Skip(1).Select(l => long.Parse(l.Split(',')[0], System.Globalization.CultureInfo.InvariantCulture)).ToArray();
+            long[] rows = File.ReadAllLines(Path.Combine(shards[k - 1], RunFolder.RowsFile)).Skip(1).Select(l => long.Parse(l.Split(',')[0], System.Globalization.CultureInfo.InvariantCulture)).ToArray();
             Assert.All(rows, r => Assert.Equal(k - 1, r % n));
             seen.AddRange(rows);
         }
@@ -75,7 +75,7 @@ public sealed class ShardMergeTests
         Assert.True(single.Rejected > 0);
         AssertSameBytes(temp.File("single"), temp.File("merged"));
 
-        using JsonDocument provenance = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(temp.File("merged"), RunMerge.MergeFile)));
+        using JsonDocument provenance = JsonDocument.Parse(File.ReadAllBytes(Path.Combine(temp.File("merged"), RunFolder.MergeFile)));
         Assert.Equal(Enumerable.Range(1, n).Select(k => $"{k}/{n}"),
             provenance.RootElement.GetProperty("shards").EnumerateArray().Select(e => e.GetProperty("shard").GetString()));
     }

@@ -36,12 +36,12 @@ public sealed class SlurmArrayTests
             Assert.True(submitted == 0, $"submit.sh --wait exited {submitted}:\n{log}");
             Dictionary<string, byte[]> expected = ExtractionRunTests.Bytes(temp.File("single"));
             Dictionary<string, byte[]> merged = ExtractionRunTests.Bytes(temp.File("merged"));
-            Assert.True(merged.Remove(RunMerge.MergeFile));
+            Assert.True(merged.Remove(RunFolder.MergeFile));
             Assert.Equal(expected.Keys.Order(), merged.Keys.Order());
             Assert.All(expected, f => Assert.True(f.Value.AsSpan().SequenceEqual(merged[f.Key]), $"{f.Key} differs from the single run"));
             for (int k = 1; k <= 4; k++)
             {
-                Assert.True(File.Exists(temp.File($"runs/shard-{k}-of-4/{ExtractionRun.RecordFile}")), $"shard {k} has no record");
+                Assert.True(File.Exists(temp.File($"runs/shard-{k}-of-4/{RunFolder.RecordFile}")), $"shard {k} has no record");
             }
 
             // Shard 3's folder holds a file of someone else's: its task exits 2, and the merge job never runs.

@@ -54,7 +54,7 @@ public static partial class Npy
     /// <summary>Writes a float64 matrix of the given width as .npy, through the engine's writer.</summary>
     public static void WriteFloat64(string path, double[] values, int width)
     {
-        using var npy = Assay.Output.NpyAppender.Create(path, "<f8", width, 8);
+        using var npy = Assay.Output.NpyAppender.Create(path, "<f8", width);
         npy.Append(System.Runtime.InteropServices.MemoryMarshal.AsBytes(values.AsSpan()));
         npy.Commit(values.Length / width);
     }

@@ -4,7 +4,7 @@ using System.Runtime.Intrinsics;
 
 namespace Assay.Kernels;
 
-internal static partial class Kernels
+internal static partial class CpuKernels
 {
     /// <summary>Rows of B that one parallel work item covers.</summary>
     private const int ConditionalMeanRowsPerTask = 16;
@@ -78,7 +78,7 @@ internal static partial class Kernels
                     }
                     for (int r = 0; r < rows; r++)
                     {
-                        AccumulateLanes(bRow, padded.AsSpan((r * panels * W) + (panel * W), W), lanes.Slice(r * W, W), variant);
+                        MultiplyAddInPlace(bRow, padded.AsSpan((r * panels * W) + (panel * W), W), lanes.Slice(r * W, W), variant);
                     }
                 }
                 for (int r = 0; r < rows; r++)
@@ -93,34 +93,5 @@ internal static partial class Kernels
             }
             return state;
         }, static _ => { });
-    }
-
-    /// <summary>lanes[j] = fma(b[j], p[j], lanes[j]) for the 64 lanes of one panel row.</summary>
-    private static void AccumulateLanes(ReadOnlySpan<float> b, ReadOnlySpan<float> p, Span<float> lanes, KernelVariant variant)
-    {
-        const int W = PackedMatrix.PanelWidth;
-        switch (variant)
-        {
-            case KernelVariant.Vector512:
-                for (int j = 0; j < W; j += Vector512<float>.Count)
-                {
-                    Vector512.FusedMultiplyAdd(Vector512.Create(b[j..]), Vector512.Create(p[j..]), Vector512.Create(lanes[j..]))
-                        .CopyTo(lanes[j..]);
-                }
-                break;
-            case KernelVariant.Vector256:
-                for (int j = 0; j < W; j += Vector256<float>.Count)
-                {
-                    Vector256.FusedMultiplyAdd(Vector256.Create(b[j..]), Vector256.Create(p[j..]), Vector256.Create(lanes[j..]))
-                        .CopyTo(lanes[j..]);
-                }
-                break;
-            default:
-                for (int j = 0; j < W; j++)
-                {
-                    lanes[j] = MathF.FusedMultiplyAdd(b[j], p[j], lanes[j]);
-                }
-                break;
-        }
     }
 }

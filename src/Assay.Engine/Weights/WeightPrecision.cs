@@ -1,4 +1,4 @@
-namespace Assay.Model;
+namespace Assay.Weights;
 
 /// <summary>How an opened model holds its matrix weights in memory. Arithmetic is float32 either way.</summary>
 public enum WeightPrecision

@@ -2,7 +2,7 @@ using System.Numerics.Tensors;
 
 namespace Assay.Kernels;
 
-internal static partial class Kernels
+internal static partial class CpuKernels
 {
     /// <summary>
     /// Row-wise LayerNorm over <paramref name="rows"/> rows of width n = gamma.Length:

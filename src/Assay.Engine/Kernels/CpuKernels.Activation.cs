@@ -3,7 +3,7 @@ using Assay.Config;
 
 namespace Assay.Kernels;
 
-internal static partial class Kernels
+internal static partial class CpuKernels
 {
     private const int ActivationChunk = 1024;
 

@@ -7,7 +7,7 @@ using Assay.Config;
 
 namespace Assay.Kernels;
 
-internal static unsafe partial class Kernels
+internal static unsafe partial class CpuKernels
 {
     /// <summary>Rows of an int8 micro-tile.</summary>
     private const int QuadRows = 6;
@@ -41,12 +41,12 @@ internal static unsafe partial class Kernels
 
     /// <summary>
     /// The int8 form of <see cref="Gemm"/>: A's rows quantized by <see cref="QuantizeRows"/>, B int8 per column, each
-    /// output the exact integer Σ_k (u_rk − 128)·q_kn (4-way byte dot products: AVX-VNNI when the CPU has it and the
-    /// path is not Scalar, else scalar integer code with the same sums), then
+    /// output the exact integer Σ_k (u_rk − 128)·q_kn (4-way byte dot products on the <paramref name="kernel"/> path:
+    /// AVX-VNNI, or scalar integer code with the same sums), then
     /// C = [C +] (float(sum) · s_n · t_r + bias_n) in that order. The integer sums make every path give the same bits.
     /// </summary>
     private static void GemmInt8(ReadOnlySpan<float> a, int m, int lda, PackedMatrix b, Span<float> c, int ldc,
-        bool accumulate, KernelVariant variant, ParallelOptions? parallel, Activation? epilogue)
+        bool accumulate, Int8Kernel kernel, ParallelOptions? parallel, Activation? epilogue)
     {
         int k = b.Rows, groups = b.Groups, ldq = groups * PackedMatrix.QuadDepth;
         byte[] quantized = ArrayPool<byte>.Shared.Rent(m * ldq);
@@ -76,7 +76,7 @@ internal static unsafe partial class Kernels
             int rowTiles = (m + QuadRows - 1) / QuadRows;
             int rowTasks = (rowTiles + TilesPerTask - 1) / TilesPerTask;
             int tasks = rowTasks * b.Panels;
-            bool vnni = variant != KernelVariant.Scalar && AvxVnni.IsSupported;
+            bool vnni = kernel == Int8Kernel.AvxVnni && AvxVnni.IsSupported;
             fixed (byte* pq = quantized)
             fixed (float* pt = rowScales)
             fixed (sbyte* pb = b.Quads)

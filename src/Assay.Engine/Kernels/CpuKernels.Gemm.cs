@@ -2,11 +2,11 @@ using System.Diagnostics;
 using System.Runtime.CompilerServices;
 using System.Runtime.Intrinsics;
 using Assay.Config;
-using Assay.Model;
+using Assay.Weights;
 
 namespace Assay.Kernels;
 
-internal static unsafe partial class Kernels
+internal static unsafe partial class CpuKernels
 {
     /// <summary>Output rows that one parallel work item covers, in micro-tiles.</summary>
     private const int TilesPerTask = 8;
@@ -23,10 +23,11 @@ internal static unsafe partial class Kernels
     /// A is M × K row-major with row stride <paramref name="lda"/>; C is M × N with row stride <paramref name="ldc"/>.
     /// B may hold float32 or bfloat16 panels (int8 goes to <see cref="GemmInt8"/>); each output element is one float32 dot product over
     /// k = 0 … K−1 in order, so results do not depend on the thread count or the kernel path.
-    /// <paramref name="parallel"/> bounds the worker threads (null: all cores).
+    /// <paramref name="parallel"/> bounds the worker threads (null: all cores); <paramref name="int8"/> picks the
+    /// integer path of an int8 B (null: <see cref="KernelSelector.CurrentInt8"/>).
     /// </summary>
     public static void Gemm(ReadOnlySpan<float> a, int m, int lda, PackedMatrix b, Span<float> c, int ldc,
-        bool accumulate, KernelVariant variant, ParallelOptions? parallel = null, Activation? epilogue = null)
+        bool accumulate, KernelVariant variant, ParallelOptions? parallel = null, Activation? epilogue = null, Int8Kernel? int8 = null)
     {
         int k = b.Rows;
         int n = b.Columns;
@@ -39,7 +40,7 @@ internal static unsafe partial class Kernels
         }
         if (b.Precision == WeightPrecision.Integer8)
         {
-            GemmInt8(a, m, lda, b, c, ldc, accumulate, variant, parallel, epilogue);
+            GemmInt8(a, m, lda, b, c, ldc, accumulate, int8 ?? KernelSelector.CurrentInt8, parallel, epilogue);
             return;
         }
 
@@ -76,7 +77,7 @@ internal static unsafe partial class Kernels
     {
         KernelVariant.Vector512 => 6,
         KernelVariant.Vector256 => 3,
-        _ => 4,
+        _ => 4,   // Vector128: 4 rows × a quarter panel; scalar: 4 rows × 64
     };
 
     private readonly struct GemmJob
@@ -174,6 +175,12 @@ internal static unsafe partial class Kernels
                     MicroVector256<TPanel>(rows, bp, 0, _k, bias, c, ldc, _accumulate);
                     MicroVector256<TPanel>(rows, bp, 1, _k, bias == null ? null : bias + 32, c + 32, ldc, _accumulate);
                     break;
+                case KernelVariant.Vector128:
+                    for (int quarter = 0; quarter < 4; quarter++)
+                    {
+                        MicroVector128<TPanel>(rows, bp, quarter, _k, bias == null ? null : bias + (16 * quarter), c + (16 * quarter), ldc, _accumulate);
+                    }
+                    break;
                 default:
                     MicroScalar<TPanel>(rows, bp, _k, bias, c, ldc, _accumulate);
                     break;
@@ -195,6 +202,9 @@ internal static unsafe partial class Kernels
 
         /// <summary>Columns 32h + 8q … 32h + 8q + 7.</summary>
         static abstract Vector256<float> Load256(byte* row, int h, int q);
+
+        /// <summary>Columns 16u + 4q … 16u + 4q + 3 (quarter u of the panel).</summary>
+        static abstract Vector128<float> Load128(byte* row, int u, int q);
     }
 
     /// <summary>float32 panels: 64 floats per row.</summary>
@@ -210,6 +220,9 @@ internal static unsafe partial class Kernels
 
         [MethodImpl(MethodImplOptions.AggressiveInlining)]
         public static Vector256<float> Load256(byte* row, int h, int q) => Vector256.Load((float*)row + (32 * h) + (8 * q));
+
+        [MethodImpl(MethodImplOptions.AggressiveInlining)]
+        public static Vector128<float> Load128(byte* row, int u, int q) => Vector128.Load((float*)row + (16 * u) + (4 * q));
     }
 
     /// <summary>bfloat16 panels: 32 words per row, two columns per word (see <see cref="PackedMatrix"/>).</summary>
@@ -238,6 +251,14 @@ internal static unsafe partial class Kernels
             // Columns 32h + 8q: q = 0, 1 are upper halves of words 16h + 8q; q = 2, 3 lower halves of words 16h + 8(q − 2).
             Vector256<uint> w = Vector256.Load((uint*)row + (16 * h) + (8 * (q & 1)));
             return (q < 2 ? w & Vector256.Create(0xFFFF0000u) : Vector256.ShiftLeft(w, 16)).AsSingle();
+        }
+
+        [MethodImpl(MethodImplOptions.AggressiveInlining)]
+        public static Vector128<float> Load128(byte* row, int u, int q)
+        {
+            // Quarter u: columns 16u … 16u + 15 are the upper (u even) or lower (u odd) halves of words 16(u >> 1) … + 15.
+            Vector128<uint> w = Vector128.Load((uint*)row + (16 * (u >> 1)) + (4 * q));
+            return ((u & 1) == 0 ? w & Vector128.Create(0xFFFF0000u) : Vector128.ShiftLeft(w, 16)).AsSingle();
         }
     }
 
@@ -274,6 +295,54 @@ internal static unsafe partial class Kernels
                 c[((long)r * ldc) + j] = acc[(r * W) + j] + (bias == null ? 0f : bias[j]);
             }
         }
+    }
+
+    /// <summary>A 4 × 16 tile (quarter <paramref name="u"/> of a panel) in 128-bit vectors (16 accumulators).</summary>
+    private static void MicroVector128<TPanel>(float** rows, byte* bp, int u, int k, float* bias, float* c, int ldc, bool accumulate)
+        where TPanel : struct, IPanelRow
+    {
+        float* a0 = rows[0], a1 = rows[1], a2 = rows[2], a3 = rows[3];
+        float* c0 = c, c1 = c + ldc, c2 = c + (2L * ldc), c3 = c + (3L * ldc);
+        Vector128<float> z = Vector128<float>.Zero;
+        Vector128<float> x00 = accumulate ? Vector128.Load(c0) : z, x01 = accumulate ? Vector128.Load(c0 + 4) : z;
+        Vector128<float> x02 = accumulate ? Vector128.Load(c0 + 8) : z, x03 = accumulate ? Vector128.Load(c0 + 12) : z;
+        Vector128<float> x10 = accumulate ? Vector128.Load(c1) : z, x11 = accumulate ? Vector128.Load(c1 + 4) : z;
+        Vector128<float> x12 = accumulate ? Vector128.Load(c1 + 8) : z, x13 = accumulate ? Vector128.Load(c1 + 12) : z;
+        Vector128<float> x20 = accumulate ? Vector128.Load(c2) : z, x21 = accumulate ? Vector128.Load(c2 + 4) : z;
+        Vector128<float> x22 = accumulate ? Vector128.Load(c2 + 8) : z, x23 = accumulate ? Vector128.Load(c2 + 12) : z;
+        Vector128<float> x30 = accumulate ? Vector128.Load(c3) : z, x31 = accumulate ? Vector128.Load(c3 + 4) : z;
+        Vector128<float> x32 = accumulate ? Vector128.Load(c3 + 8) : z, x33 = accumulate ? Vector128.Load(c3 + 12) : z;
+        for (int p = 0; p < k; p++)
+        {
+            byte* bRow = bp + ((long)p * TPanel.RowBytes);
+            Vector128<float> b0 = TPanel.Load128(bRow, u, 0), b1 = TPanel.Load128(bRow, u, 1);
+            Vector128<float> b2 = TPanel.Load128(bRow, u, 2), b3 = TPanel.Load128(bRow, u, 3);
+            Vector128<float> v = Vector128.Create(a0[p]);
+            x00 = Vector128.FusedMultiplyAdd(v, b0, x00); x01 = Vector128.FusedMultiplyAdd(v, b1, x01);
+            x02 = Vector128.FusedMultiplyAdd(v, b2, x02); x03 = Vector128.FusedMultiplyAdd(v, b3, x03);
+            v = Vector128.Create(a1[p]);
+            x10 = Vector128.FusedMultiplyAdd(v, b0, x10); x11 = Vector128.FusedMultiplyAdd(v, b1, x11);
+            x12 = Vector128.FusedMultiplyAdd(v, b2, x12); x13 = Vector128.FusedMultiplyAdd(v, b3, x13);
+            v = Vector128.Create(a2[p]);
+            x20 = Vector128.FusedMultiplyAdd(v, b0, x20); x21 = Vector128.FusedMultiplyAdd(v, b1, x21);
+            x22 = Vector128.FusedMultiplyAdd(v, b2, x22); x23 = Vector128.FusedMultiplyAdd(v, b3, x23);
+            v = Vector128.Create(a3[p]);
+            x30 = Vector128.FusedMultiplyAdd(v, b0, x30); x31 = Vector128.FusedMultiplyAdd(v, b1, x31);
+            x32 = Vector128.FusedMultiplyAdd(v, b2, x32); x33 = Vector128.FusedMultiplyAdd(v, b3, x33);
+        }
+        if (bias != null)
+        {
+            Vector128<float> y0 = Vector128.Load(bias), y1 = Vector128.Load(bias + 4);
+            Vector128<float> y2 = Vector128.Load(bias + 8), y3 = Vector128.Load(bias + 12);
+            x00 += y0; x01 += y1; x02 += y2; x03 += y3;
+            x10 += y0; x11 += y1; x12 += y2; x13 += y3;
+            x20 += y0; x21 += y1; x22 += y2; x23 += y3;
+            x30 += y0; x31 += y1; x32 += y2; x33 += y3;
+        }
+        x00.Store(c0); x01.Store(c0 + 4); x02.Store(c0 + 8); x03.Store(c0 + 12);
+        x10.Store(c1); x11.Store(c1 + 4); x12.Store(c1 + 8); x13.Store(c1 + 12);
+        x20.Store(c2); x21.Store(c2 + 4); x22.Store(c2 + 8); x23.Store(c2 + 12);
+        x30.Store(c3); x31.Store(c3 + 4); x32.Store(c3 + 8); x33.Store(c3 + 12);
     }
 
     /// <summary>A 3 × 32 tile (half <paramref name="h"/> of a panel) in 256-bit vectors (12 accumulators).</summary>

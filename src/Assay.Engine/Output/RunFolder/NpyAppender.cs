@@ -1,22 +1,13 @@
-using System.Buffers.Binary;
 using System.Globalization;
-using System.Text;
 
 namespace Assay.Output;
 
 /// <summary>
-/// A 2-D NumPy .npy file (format version 1.0: magic, version, little-endian header length, a Python-literal header
-/// dict padded with spaces to a 64-byte boundary and ending in a newline, then the rows in C order) that grows by
-/// appending rows. The header has a fixed size of <see cref="HeaderBytes"/>, so the row count can be rewritten in
-/// place at every commit and the file is always a valid array of the rows committed so far.
+/// A 2-D NumPy .npy file (<see cref="NpyFormat"/>) that grows by appending rows. Its header has a fixed size, so the
+/// row count is rewritten in place at every commit and the file is always a valid array of the rows committed so far.
 /// </summary>
 internal sealed class NpyAppender : IDisposable
 {
-    /// <summary>Bytes before the data: room for any 64-bit row count, and a multiple of 64 as NumPy aligns it.</summary>
-    public const int HeaderBytes = 128;
-
-    private static readonly byte[] Magic = [0x93, (byte)'N', (byte)'U', (byte)'M', (byte)'P', (byte)'Y', 1, 0];
-
     private readonly FileStream _file;
     private readonly string _descr;
 
@@ -38,10 +29,10 @@ internal sealed class NpyAppender : IDisposable
     public int RowBytes { get; }
 
     /// <summary>Creates (or replaces) the file with zero rows; <paramref name="descr"/> is the NumPy dtype (&lt;f4, &lt;f2 or &lt;i4).</summary>
-    public static NpyAppender Create(string path, string descr, int width, int elementBytes)
+    public static NpyAppender Create(string path, string descr, int width)
     {
         var file = new FileStream(path, FileMode.Create, FileAccess.ReadWrite, FileShare.Read);
-        var npy = new NpyAppender(path, file, descr, width, elementBytes);
+        var npy = new NpyAppender(path, file, descr, width, NpyFormat.ElementBytes(descr));
         npy.WriteHeader(0);
         return npy;
     }
@@ -51,11 +42,11 @@ internal sealed class NpyAppender : IDisposable
     /// after them (rows written after the last commit).
     /// </summary>
     /// <exception cref="IOException">The file is shorter than the committed rows: it was changed since.</exception>
-    public static NpyAppender Reopen(string path, string descr, int width, int elementBytes, long rows)
+    public static NpyAppender Reopen(string path, string descr, int width, long rows)
     {
         var file = new FileStream(path, FileMode.Open, FileAccess.ReadWrite, FileShare.Read);
-        var npy = new NpyAppender(path, file, descr, width, elementBytes);
-        long length = HeaderBytes + (rows * npy.RowBytes);
+        var npy = new NpyAppender(path, file, descr, width, NpyFormat.ElementBytes(descr));
+        long length = NpyFormat.HeaderBytes + (rows * npy.RowBytes);
         if (file.Length < length)
         {
             file.Dispose();
@@ -66,21 +57,6 @@ internal sealed class NpyAppender : IDisposable
         npy.WriteHeader(rows);
         file.Seek(0, SeekOrigin.End);
         return npy;
-    }
-
-    /// <summary>The header of a <paramref name="rows"/> × <paramref name="width"/> array.</summary>
-    public static byte[] Header(string descr, long rows, int width)
-    {
-        string dict = string.Create(CultureInfo.InvariantCulture, $"{{'descr': '{descr}', 'fortran_order': False, 'shape': ({rows}, {width}), }}");
-        int padded = HeaderBytes - Magic.Length - 2;
-        byte[] header = new byte[HeaderBytes];
-        Magic.CopyTo(header, 0);
-        BinaryPrimitives.WriteUInt16LittleEndian(header.AsSpan(Magic.Length), (ushort)padded);
-        Span<byte> text = header.AsSpan(Magic.Length + 2);
-        text.Fill((byte)' ');
-        Encoding.ASCII.GetBytes(dict, text);
-        text[^1] = (byte)'\n';
-        return header;
     }
 
     public void Append(ReadOnlySpan<byte> rows) => _file.Write(rows);
@@ -99,6 +75,6 @@ internal sealed class NpyAppender : IDisposable
     private void WriteHeader(long rows)
     {
         _file.Seek(0, SeekOrigin.Begin);
-        _file.Write(Header(_descr, rows, Width));
+        _file.Write(NpyFormat.Header(_descr, rows, Width));
     }
 }

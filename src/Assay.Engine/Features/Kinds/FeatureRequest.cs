@@ -1,0 +1,30 @@
+using System.Text.Json.Nodes;
+using Assay.Config;
+
+namespace Assay.Features;
+
+/// <summary>
+/// One kind of feature an extraction computes for every row. A kind owns its spelling (<see cref="Spec"/>, and its
+/// parser in <see cref="FeatureSpec"/>), the arrays it writes, what it needs from the forward pass, and its compute
+/// step; the extractor only schedules what the kinds ask for.
+/// </summary>
+public abstract record FeatureRequest
+{
+    private protected FeatureRequest()
+    {
+    }
+
+    /// <summary>The canonical spelling of the request, as <c>assay extract --features</c> takes it.</summary>
+    public abstract string Spec { get; }
+
+    /// <summary>The arrays the kind writes for a model of shape <paramref name="config"/>, in order.</summary>
+    /// <exception cref="ArgumentException">The request does not fit the model (a layer out of range, k over the vocabulary).</exception>
+    internal abstract IReadOnlyList<FeatureOutput> Outputs(ModelConfig config);
+
+    /// <summary>The kind's compute step for one extraction, writing the outputs from <paramref name="firstOutput"/> on.</summary>
+    /// <exception cref="ArgumentException">The request does not fit the prompt or its words have no tokens.</exception>
+    internal abstract FeatureStep Bind(FeatureBinding binding, int firstOutput);
+
+    /// <summary>The kind's entry in a run record: its spelling and whatever else decides its values (word lists).</summary>
+    internal virtual JsonObject Describe() => new() { ["spec"] = Spec };
+}

@@ -1,0 +1,89 @@
+using System.Text.Json;
+using System.Text.Json.Nodes;
+
+namespace Assay.Output;
+
+/// <summary>The state of a run at its last commit: what progress.json holds (or, for a finished run, its record's counts).</summary>
+internal sealed class CommitPoint
+{
+    public required JsonObject Settings { get; init; }
+
+    public long Consumed { get; set; }
+
+    public long Rows { get; set; }
+
+    public long Rejected { get; set; }
+
+    public long TruncatedRows { get; set; }
+
+    public long Tokens { get; set; }
+
+    public long RowsBytes { get; set; }
+
+    public long RejectsBytes { get; set; }
+
+    public JsonArray Sessions { get; init; } = [];
+
+    public bool Complete { get; init; }
+
+    /// <summary>Reads progress.json of <paramref name="folder"/>.</summary>
+    public static CommitPoint Load(string folder)
+    {
+        JsonObject o;
+        try
+        {
+            o = (JsonObject)JsonNode.Parse(File.ReadAllBytes(Path.Combine(folder, RunFolder.ProgressFile)))!;
+        }
+        catch (Exception e) when (e is JsonException or InvalidCastException or NullReferenceException)
+        {
+            throw new RunFolderException(folder, $"{RunFolder.ProgressFile} is unreadable ({e.Message}); pass --overwrite to start over");
+        }
+        return new CommitPoint
+        {
+            Settings = (JsonObject)o["settings"]!.DeepClone(),
+            Consumed = o["consumed_records"]!.GetValue<long>(),
+            Rows = o["rows"]!.GetValue<long>(),
+            Rejected = o["rejected"]!.GetValue<long>(),
+            TruncatedRows = o["truncated_rows"]!.GetValue<long>(),
+            Tokens = o["tokens"]!.GetValue<long>(),
+            RowsBytes = o["rows_bytes"]!.GetValue<long>(),
+            RejectsBytes = o["rejects_bytes"]!.GetValue<long>(),
+            Sessions = (JsonArray)o["sessions"]!.DeepClone(),
+        };
+    }
+
+    /// <summary>The state of a finished run.</summary>
+    public static CommitPoint Finished(RunRecord record)
+    {
+        RunCounts counts = record.Counts;
+        return new CommitPoint
+        {
+            Settings = (JsonObject)record.Settings.DeepClone(),
+            Consumed = counts.Read,
+            Rows = counts.Accepted,
+            Rejected = counts.Rejected,
+            TruncatedRows = counts.TruncatedRows,
+            Tokens = counts.Tokens,
+            Complete = true,
+        };
+    }
+
+    /// <summary>Replaces progress.json of <paramref name="folder"/> atomically.</summary>
+    public void Write(string folder) => AtomicFile.WriteJson(Path.Combine(folder, RunFolder.ProgressFile), ToJson());
+
+    private JsonObject ToJson() => new()
+    {
+        ["settings"] = Settings.DeepClone(),
+        ["consumed_records"] = Consumed,
+        ["rows"] = Rows,
+        ["rejected"] = Rejected,
+        ["truncated_rows"] = TruncatedRows,
+        ["tokens"] = Tokens,
+        ["rows_bytes"] = RowsBytes,
+        ["rejects_bytes"] = RejectsBytes,
+        ["sessions"] = Sessions.DeepClone(),
+    };
+
+    public RunSummary Summary(bool alreadyComplete, TimeSpan elapsed) =>
+        new(Consumed, Rows, Rejected, TruncatedRows, Tokens, 0, alreadyComplete, elapsed);
+}

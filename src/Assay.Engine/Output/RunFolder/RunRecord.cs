@@ -1,0 +1,137 @@
+using System.Globalization;
+using System.Security.Cryptography;
+using System.Text.Json;
+using System.Text.Json.Nodes;
+
+namespace Assay.Output;
+
+/// <summary>One feature file of a finished run: its file name, NumPy dtype, rows and width.</summary>
+public sealed record RunOutputFile(string File, string DType, long Rows, int Width);
+
+/// <summary>A run's counts: records read, rows written, records rejected, rows truncated, and tokens of all rows.</summary>
+public readonly record struct RunCounts(long Read, long Accepted, long Rejected, long TruncatedRows, long Tokens);
+
+/// <summary>
+/// A finished run's <c>record.json</c>, the one place that writes and reads it: the settings that decide the bytes
+/// (model files and hashes, input, prompt, features, options), the counts, each feature file's shape, and for a shard
+/// which shard it is. Identical runs give identical records, resumed, sharded and merged or not.
+/// </summary>
+public sealed class RunRecord
+{
+    private RunRecord(JsonObject settings, RunCounts counts, IReadOnlyList<RunOutputFile> files, RunShard? shard, long shardInputRows, string sha256)
+    {
+        Settings = settings;
+        Counts = counts;
+        Files = files;
+        Shard = shard;
+        ShardInputRows = shardInputRows;
+        Sha256 = sha256;
+    }
+
+    /// <summary>What was computed from what.</summary>
+    internal JsonObject Settings { get; }
+
+    /// <summary>The run's counts.</summary>
+    public RunCounts Counts { get; }
+
+    /// <summary>The feature files, in output order.</summary>
+    public IReadOnlyList<RunOutputFile> Files { get; }
+
+    /// <summary>Which shard of an extraction the folder holds; null for an unsharded (or merged) run.</summary>
+    public RunShard? Shard { get; }
+
+    /// <summary>For a shard: the accepted rows of the whole input, of which the shard holds its share.</summary>
+    internal long ShardInputRows { get; }
+
+    /// <summary>SHA-256 of the file's bytes (empty for a record not yet written).</summary>
+    internal string Sha256 { get; }
+
+    /// <summary>The record of a finished run with these settings and counts, and files of these names, dtypes and widths.</summary>
+    internal static RunRecord Create(JsonObject settings, RunCounts counts, IEnumerable<(string File, string DType, int Width)> files,
+        RunShard? shard = null, long shardInputRows = 0) =>
+        new(settings, counts, [.. files.Select(f => new RunOutputFile(f.File, f.DType, counts.Accepted, f.Width))], shard, shardInputRows, "");
+
+    /// <summary>Reads the record of the run in <paramref name="folder"/>.</summary>
+    /// <exception cref="RunFolderException">There is no record (no finished run), or it is unreadable.</exception>
+    public static RunRecord Read(string folder)
+    {
+        ArgumentNullException.ThrowIfNull(folder);
+        string path = Path.Combine(folder, RunFolder.RecordFile);
+        if (!File.Exists(path))
+        {
+            throw new RunFolderException(folder, $"holds no finished run (no {RunFolder.RecordFile})");
+        }
+        byte[] bytes = File.ReadAllBytes(path);
+        try
+        {
+            var record = (JsonObject)JsonNode.Parse(bytes)!;
+            JsonNode c = record["counts"]!;
+            var counts = new RunCounts(c["read"]!.GetValue<long>(), c["accepted"]!.GetValue<long>(), c["rejected"]!.GetValue<long>(),
+                c["truncated_rows"]!.GetValue<long>(), c["tokens"]!.GetValue<long>());
+            RunOutputFile[] files = [.. record["files"]!.AsArray().Select(f => new RunOutputFile(f!["file"]!.GetValue<string>(),
+                f["dtype"]!.GetValue<string>(), f["shape"]![0]!.GetValue<long>(), f["shape"]![1]!.GetValue<int>()))];
+            RunShard? shard = null;
+            long inputRows = 0;
+            if (record["shard"] is JsonObject s)
+            {
+                int index = s["index"]!.GetValue<int>(), count = s["count"]!.GetValue<int>();
+                if (count < 2 || index < 1 || index > count)
+                {
+                    throw new RunFolderException(folder, string.Create(CultureInfo.InvariantCulture, $"{RunFolder.RecordFile} names shard {index}/{count}, which cannot be"));
+                }
+                shard = new RunShard(index, count);
+                inputRows = s["input_rows"]!.GetValue<long>();
+            }
+            return new RunRecord((JsonObject)record["settings"]!.DeepClone(), counts, files, shard, inputRows, Convert.ToHexStringLower(SHA256.HashData(bytes)));
+        }
+        catch (Exception e) when (e is JsonException or InvalidCastException or InvalidOperationException or NullReferenceException
+            or FormatException or IndexOutOfRangeException or ArgumentOutOfRangeException)
+        {
+            throw new RunFolderException(folder, $"{RunFolder.RecordFile} is unreadable ({e.Message})");
+        }
+    }
+
+    /// <summary>Writes the record into <paramref name="folder"/> (atomically, flushed to disk).</summary>
+    internal void Write(string folder) => AtomicFile.WriteJson(Path.Combine(folder, RunFolder.RecordFile), ToJson());
+
+    /// <summary>record.json: settings, counts, files, and the shard entry of a shard.</summary>
+    internal JsonObject ToJson()
+    {
+        var shapes = new JsonArray();
+        foreach (RunOutputFile f in Files)
+        {
+            shapes.Add(new JsonObject { ["file"] = f.File, ["dtype"] = f.DType, ["shape"] = new JsonArray(f.Rows, f.Width) });
+        }
+        var record = new JsonObject
+        {
+            ["settings"] = Settings.DeepClone(),
+            ["counts"] = new JsonObject
+            {
+                ["read"] = Counts.Read,
+                ["accepted"] = Counts.Accepted,
+                ["rejected"] = Counts.Rejected,
+                ["truncated_rows"] = Counts.TruncatedRows,
+                ["tokens"] = Counts.Tokens,
+            },
+            ["files"] = shapes,
+        };
+        if (Shard is { } shard)
+        {
+            record["shard"] = new JsonObject { ["index"] = shard.Index, ["count"] = shard.Count, ["input_rows"] = ShardInputRows };
+        }
+        return record;
+    }
+
+    /// <summary>The first top-level setting whose value differs, or null when they agree.</summary>
+    internal static string? FirstDifference(JsonObject stored, JsonObject current)
+    {
+        foreach (KeyValuePair<string, JsonNode?> pair in current)
+        {
+            if (!JsonNode.DeepEquals(pair.Value, stored[pair.Key]))
+            {
+                return pair.Key.Replace('_', ' ');
+            }
+        }
+        return stored.Count == current.Count ? null : "set of settings";
+    }
+}
