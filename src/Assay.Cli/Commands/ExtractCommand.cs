@@ -101,18 +101,8 @@ internal static class ExtractCommand
             throw new ArgumentException($"--prompt: {e.Message}", e);
         }
         InputFormat format = Format(q.Format);
-        TextTruncation truncation = q.Keep switch
-        {
-            "head" => TextTruncation.KeepHead,
-            "tail" => TextTruncation.KeepTail,
-            _ => throw new ArgumentException($"--keep {q.Keep}: expected head or tail"),
-        };
-        FeaturePrecision precision = q.Precision switch
-        {
-            "float32" => FeaturePrecision.Binary32,
-            "float16" => FeaturePrecision.Binary16,
-            _ => throw new ArgumentException($"--precision {q.Precision}: expected float32 or float16"),
-        };
+        TextTruncation truncation = Spellings.Parse<TextTruncation>("--keep", q.Keep);
+        FeaturePrecision precision = Spellings.Parse<FeaturePrecision>("--precision", q.Precision);
         if (!File.Exists(q.Input))
         {
             throw new FileNotFoundException($"{q.Input}: no such input file", q.Input);
@@ -211,15 +201,7 @@ internal static class ExtractCommand
     }
 
     /// <summary>The --format names.</summary>
-    internal static InputFormat Format(string name) => name switch
-    {
-        "auto" => InputFormat.Auto,
-        "lines" or "text" => InputFormat.Lines,
-        "jsonl" => InputFormat.JsonLines,
-        "csv" => InputFormat.Csv,
-        "tsv" => InputFormat.Tsv,
-        _ => throw new ArgumentException($"--format {name}: expected auto, lines, jsonl, csv or tsv"),
-    };
+    internal static InputFormat Format(string name) => Spellings.Parse<InputFormat>("--format", name);
 
     private static void PrintSummary(TextWriter o, string folder, RunSummary s, RunShard? shard)
     {

@@ -23,11 +23,5 @@ internal static class ModelOption
         DefaultValueFactory = _ => "float32",
     };
 
-    public static WeightPrecision ParseWeights(string name) => name switch
-    {
-        "float32" => WeightPrecision.Binary32,
-        "bfloat16" => WeightPrecision.BFloat16,
-        "int8" => WeightPrecision.Integer8,
-        _ => throw new ArgumentException($"--weights {name}: expected float32, bfloat16 or int8"),
-    };
+    public static WeightPrecision ParseWeights(string name) => Spellings.Parse<WeightPrecision>("--weights", name);
 }

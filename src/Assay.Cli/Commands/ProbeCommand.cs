@@ -23,7 +23,7 @@ internal static class ProbeCommand
         var feature = new Option<string>("--feature") { Description = "Feature file stem, e.g. cmean or hidden.layer4.last.", Required = true };
         var output = new Option<DirectoryInfo>("--out", "-o") { Description = "Folder for probe.json, report.json and predictions.csv.", Required = true };
         var folds = new Option<int>("--folds") { Description = "Cross-validation folds.", DefaultValueFactory = _ => new ProbeOptions().Folds };
-        var strengths = new Option<string>("--strengths") { Description = "Comma-separated C values to try (larger = weaker L2 penalty).", DefaultValueFactory = _ => string.Join(',', new ProbeOptions().Strengths.Select(c => c.ToString("R", CultureInfo.InvariantCulture))) };
+        var strengths = new Option<string>("--strengths") { Description = "Comma-separated C values to try (larger = weaker L2 penalty).", DefaultValueFactory = _ => string.Join(',', new ProbeOptions().InverseRegularizations.Select(c => c.ToString("R", CultureInfo.InvariantCulture))) };
         var command = new Command("probe", "Fit a linear probe (standardized multinomial logistic regression, C by cross-validation) on run-folder features, or apply a saved one, and report accuracy, log loss, macro-F1 and the confusion matrix.")
         {
             train, saved, test, feature, output, folds, strengths,
@@ -55,10 +55,10 @@ internal static class ProbeCommand
         if (trainRun != null)
         {
             RunFeatures data = RunFeatures.Load(trainRun, feature);
-            probe = LinearProbe.Fit(data.Values, data.Rows, data.Width, data.Labels, new ProbeOptions { Folds = folds, Strengths = grid });
+            probe = LinearProbe.Fit(data.Values, data.Rows, data.Width, data.Labels, new ProbeOptions { Folds = folds, InverseRegularizations = grid });
             File.WriteAllText(Path.Combine(output, "probe.json"), probe.ToJson().ToJsonString(new JsonSerializerOptions { WriteIndented = true }) + "\n");
             report["train"] = new JsonObject { ["run"] = trainRun, ["rows"] = data.Rows, ["width"] = data.Width };
-            o.WriteLine(string.Create(inv, $"fitted on {data.Rows:N0} rows × {data.Width} features of {feature}, {probe.Classes.Count} classes; C = {probe.Strength:G4} by {folds}-fold cross-validation"));
+            o.WriteLine(string.Create(inv, $"fitted on {data.Rows:N0} rows × {data.Width} features of {feature}, {probe.Classes.Count} classes; C = {probe.InverseRegularization:G4} by {folds}-fold cross-validation"));
             o.WriteLine("         C   cv log loss   cv accuracy");
             foreach ((double c, double loss, double accuracy) in probe.Search)
             {
@@ -70,38 +70,20 @@ internal static class ProbeCommand
             probe = LinearProbe.FromJson(savedProbe!);
             report["probe"] = savedProbe;
         }
-        report["c"] = probe.Strength;
+        report["c"] = probe.InverseRegularization;
 
         if (testRun != null)
         {
             RunFeatures data = RunFeatures.Load(testRun, feature);
-            double[] p = probe.Predict(data.Values, data.Rows, data.Width);
-            int k = probe.Classes.Count;
-            var index = probe.Classes.Select((c, i) => (c, i)).ToDictionary(x => x.c, x => x.i, StringComparer.Ordinal);
-            string? unknown = data.Labels.FirstOrDefault(l => !index.ContainsKey(l));
-            if (unknown != null)
+            ProbeScore scored = ProbeScorer.Score(probe, data, testRun);
+            ClassificationReport score = scored.Report;
+            WritePredictions(Path.Combine(output, "predictions.csv"), data, probe, scored.Probabilities);
+            var tested = new JsonObject { ["run"] = testRun };
+            foreach ((string key, JsonNode? value) in score.ToJson(probe.Classes))
             {
-                throw new ArgumentException($"{testRun}: label \"{unknown}\" is not one of the probe's classes");
+                tested[key] = value?.DeepClone();
             }
-            int[] truth = [.. data.Labels.Select(l => index[l])];
-            ProbeReport score = ProbeReport.Score(p, truth, k);
-            WritePredictions(Path.Combine(output, "predictions.csv"), data, probe, p);
-            var confusion = new JsonArray();
-            for (int i = 0; i < k; i++)
-            {
-                confusion.Add(new JsonArray([.. Enumerable.Range(0, k).Select(j => JsonValue.Create(score.Confusion[i, j]))]));
-            }
-            report["test"] = new JsonObject
-            {
-                ["run"] = testRun,
-                ["rows"] = score.Rows,
-                ["accuracy"] = score.Accuracy,
-                ["accuracy_95"] = new JsonArray(score.AccuracyLow, score.AccuracyHigh),
-                ["log_loss"] = score.LogLoss,
-                ["macro_f1"] = score.MacroF1,
-                ["classes"] = new JsonArray([.. probe.Classes.Select(c => JsonValue.Create(c))]),
-                ["confusion"] = confusion,
-            };
+            report["test"] = tested;
             o.WriteLine(string.Create(inv,
                 $"test: {score.Rows:N0} rows, accuracy {score.Accuracy:P2} (95 % bootstrap {score.AccuracyLow:P2} – {score.AccuracyHigh:P2}), log loss {score.LogLoss:F4}, macro-F1 {score.MacroF1:F4}"));
         }

@@ -49,7 +49,7 @@ internal sealed class ProgressPrinter(TextWriter err, bool interactive, TimeSpan
         double left = 1 - p.InputFraction;
         string eta = done > 0 && left > 0 ? "ETA " + Clock(TimeSpan.FromSeconds(seconds * left / done)) : left <= 0 ? "input read" : "ETA …";
         string line = string.Create(inv,
-            $"assay: {p.Rows:N0} rows, {p.Read:N0} records read ({p.Rejected:N0} rejected), {p.InputFraction:P0} of input, {rate}, {Clock(p.Elapsed)} elapsed, {eta}");
+            $"assay: {p.Accepted:N0} rows, {p.Read:N0} records read ({p.Rejected:N0} rejected), {p.InputFraction:P0} of input, {rate}, {Clock(p.Elapsed)} elapsed, {eta}");
         if (interactive)
         {
             err.Write("\r" + line.PadRight(100));

@@ -31,7 +31,7 @@ internal static class StudyCommand
         StudyReport.Write(result, output, markdown);
         o.Write(markdown);
         o.WriteLine();
-        o.WriteLine($"wrote {Path.Combine(output, StudyReport.MarkdownFile)}, {StudyReport.CsvFile} and the plots in {output}");
+        o.WriteLine($"wrote {Path.Combine(output, StudyFolder.MarkdownFile)}, {StudyFolder.CsvFile} and the plots in {output}");
         return 0;
     }
 

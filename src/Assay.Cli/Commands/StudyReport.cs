@@ -9,9 +9,6 @@ namespace Assay.Cli.Commands;
 /// <summary>The study's tables (Markdown, CSV) and plots (PNG, drawn with ScottPlot).</summary>
 internal static class StudyReport
 {
-    public const string MarkdownFile = "results.md";
-    public const string CsvFile = "results.csv";
-
     /// <summary>A font every Debian 12 machine with fonts-dejavu-core has, so the plots look the same everywhere.</summary>
     private const string FontName = "DejaVu Sans";
 
@@ -19,14 +16,14 @@ internal static class StudyReport
 
     public static void Write(StudyResult r, string folder, string markdown)
     {
-        File.WriteAllText(Path.Combine(folder, MarkdownFile), markdown);
-        WriteCsv(r, Path.Combine(folder, CsvFile));
+        File.WriteAllText(Path.Combine(folder, StudyFolder.MarkdownFile), markdown);
+        WriteCsv(r, Path.Combine(folder, StudyFolder.CsvFile));
         foreach ((string prompt, _) in r.Spec.Prompts)
         {
-            AccuracyPlot(r, prompt).SavePng(Path.Combine(folder, $"accuracy.{prompt}.png"), 1000, 520);
+            AccuracyPlot(r, prompt).SavePng(Path.Combine(folder, StudyFolder.AccuracyPlot(prompt)), 1000, 520);
             if (r.Curves.Any(c => c.Prompt == prompt))
             {
-                LossPlot(r, prompt).SavePng(Path.Combine(folder, $"loss-vs-cross-entropy.{prompt}.png"), 1000, 560);
+                LossPlot(r, prompt).SavePng(Path.Combine(folder, StudyFolder.LossPlot(prompt)), 1000, 560);
             }
         }
     }
@@ -39,7 +36,7 @@ internal static class StudyReport
         s.Append(Inv, $"Study {Path.GetFileName(r.Spec.Path)}: {r.Classes.Count} classes (chance {1.0 / r.Classes.Count:P1}); ")
             .Append(Inv, $"probes fitted on {train:N0} training texts (every {r.Spec.TrainEvery}. of {Path.GetFileName(r.Spec.Train)}), ")
             .Append(Inv, $"scored on {any.Score.Rows:N0} test texts (every {r.Spec.TestEvery}. of {Path.GetFileName(r.Spec.Test)}); ")
-            .Append(Inv, $"C from {{{string.Join(", ", r.Spec.Probe.Strengths.Select(c => c.ToString("G3", Inv)))}}} by {r.Spec.Probe.Folds}-fold cross-validation. ")
+            .Append(Inv, $"C from {{{string.Join(", ", r.Spec.Probe.InverseRegularizations.Select(c => c.ToString("G3", Inv)))}}} by {r.Spec.Probe.Folds}-fold cross-validation. ")
             .Append("Cross-entropy: the model's own, on the test texts without a prompt. ")
             .Append(Inv, $"Without features (the training labels' frequencies for every text): accuracy {r.Prior.Accuracy * 100:F1} % (the majority class), log loss {r.Prior.LogLoss:F3}.\n\n");
 
@@ -101,7 +98,7 @@ internal static class StudyReport
             w.WriteField(c.Feature);
             w.WriteField(c.Width.ToString(Inv));
             w.WriteField(c.TrainRows.ToString(Inv));
-            w.WriteField(c.Strength?.ToString("R", Inv) ?? "");
+            w.WriteField(c.InverseRegularization?.ToString("R", Inv) ?? "");
             w.WriteField(c.Score.Rows.ToString(Inv));
             w.WriteField(c.Score.Accuracy.ToString("R", Inv));
             w.WriteField(c.Score.AccuracyLow.ToString("R", Inv));

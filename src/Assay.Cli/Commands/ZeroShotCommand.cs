@@ -43,14 +43,14 @@ internal static class ZeroShotCommand
             Features = [new WordListFeature(v.AllWords, fullWords)],
         });
         int output = fullWords ? 1 : 0;
-        var index = v.Labels.Select((l, i) => (l, i)).ToDictionary(x => x.l, x => x.i, StringComparer.Ordinal);
+        var classes = new LabelIndex(v.Labels);
         using TextInputReader reader = TextInputReader.Open(input, format, new InputFields { Text = textField, Label = labelField, LabelRequired = true });
         var truth = new List<int>();
         var texts = new List<string>();
         long skipped = 0;
         foreach (InputRecord r in reader.Records())
         {
-            if (r.Accepted && index.TryGetValue(r.Label, out int label))
+            if (r.Accepted && classes.TryGetIndex(r.Label, out int label))
             {
                 truth.Add(label);
                 texts.Add(r.Text!);
@@ -60,15 +60,13 @@ internal static class ZeroShotCommand
                 skipped++;
             }
         }
-        int k = v.Labels.Count;
-        double[] p = new double[truth.Count * k];
-        int row = 0;
+        int k = classes.Count;
+        var scorer = new ZeroShotScorer(v, classes, fullWords);
         foreach (FeatureRow f in extractor.Extract(texts))
         {
-            v.Distribution(f.Values(output), fullWords, p.AsSpan(row * k, k));
-            row++;
+            scorer.Add(f.Values(output), truth[scorer.Rows]);
         }
-        ProbeReport score = ProbeReport.Score(p, [.. truth], k);
+        ClassificationReport score = scorer.Report();
         CultureInfo inv = CultureInfo.InvariantCulture;
         o.WriteLine(string.Create(inv, $"{score.Rows:N0} texts ({skipped:N0} records skipped: rejected, or a label the verbalizer lacks), {k} labels, scored by {(fullWords ? "the likelihood of whole words" : "first-token probability")}"));
         o.WriteLine(string.Create(inv, $"accuracy {score.Accuracy:P2} (95 % bootstrap {score.AccuracyLow:P2} – {score.AccuracyHigh:P2}), log loss {score.LogLoss:F4}, macro-F1 {score.MacroF1:F4}; chance {1.0 / k:P2}"));

@@ -21,7 +21,8 @@ namespace Assay.Output;
 /// </summary>
 public static class ExtractionRun
 {
-    private const int FormatVersion = 1;
+    /// <summary>2: values spelled as on the command line (jsonl, head), JSON written unescaped (&lt;f4, +).</summary>
+    private const int FormatVersion = 2;
 
     /// <summary>Runs (or resumes) an extraction of <paramref name="inputPath"/> into <paramref name="outputFolder"/>.</summary>
     /// <exception cref="RunFolderException">The folder holds a finished run (and neither Resume nor Overwrite is set),
@@ -57,7 +58,7 @@ public static class ExtractionRun
         }
 
         var state = resumed ?? new CommitPoint { Settings = settings };
-        long resumedAt = state.Rows;
+        long resumedAt = state.Accepted;
         var session = new JsonObject { ["started"] = Timestamp(started) };
         UpdateSession(session, TimeSpan.Zero, 0, 0);
         state.Sessions.Add(session);
@@ -78,7 +79,7 @@ public static class ExtractionRun
             RunShard? shard = options.Shard;
             bool more = true;
             long inputRows = 0;
-            for (long skip = 0; skip < state.Consumed && more; skip++)
+            for (long skip = 0; skip < state.Read && more; skip++)
             {
                 // Records before the last commit were counted then; reading them again only finds where to go on
                 // (and, for a shard, the input index of the next accepted row).
@@ -125,24 +126,24 @@ public static class ExtractionRun
                 }
                 reporter?.StartGroup(read, rejected.Count);
 
-                FeatureRow[] rows = texts.Count == 0 ? [] : extractor.ExtractGroup(texts, state.Rows, tracker, cancellationToken);
+                FeatureRow[] rows = texts.Count == 0 ? [] : extractor.ExtractGroup(texts, state.Accepted, tracker, cancellationToken);
                 cancellationToken.ThrowIfCancellationRequested();
                 files.Append(rows, accepted, rowIndices, rejected);
-                state.Consumed += read;
-                state.Rows += accepted.Count;
+                state.Read += read;
+                state.Accepted += accepted.Count;
                 state.Rejected += rejected.Count;
                 state.TruncatedRows += rows.Count(r => r.TruncatedTokens > 0);
                 state.Tokens += rows.Sum(r => (long)r.TokenCount);
                 sessionTokens = tracker.Tokens;
-                UpdateSession(session, clock.Elapsed, state.Rows - resumedAt, sessionTokens);
+                UpdateSession(session, clock.Elapsed, state.Accepted - resumedAt, sessionTokens);
                 files.Commit(state);
                 state.Write(outputFolder);
                 reporter?.StartGroup(0, 0);
-                progress?.Report(new RunProgress(state.Rows, state.Consumed, state.Rejected, sessionTokens,
+                progress?.Report(new RunProgress(state.Accepted, state.Read, state.Rejected, sessionTokens,
                     reader.TotalBytes == 0 ? 1 : Math.Min(1.0, (double)reader.BytesRead / reader.TotalBytes), clock.Elapsed));
             }
 
-            UpdateSession(session, clock.Elapsed, state.Rows - resumedAt, sessionTokens);
+            UpdateSession(session, clock.Elapsed, state.Accepted - resumedAt, sessionTokens);
             files.Dispose();
             Finish(outputFolder, state, outputs, shard, inputRows);
             return state.Summary(alreadyComplete: false, clock.Elapsed) with { ResumedAt = resumedAt };
@@ -183,12 +184,7 @@ public static class ExtractionRun
                 ["vocabulary"] = model.Config.VocabularySize,
                 ["context"] = model.Config.ContextLength,
                 ["tokenizer"] = Path.GetFileName(model.Tokenizer.Source),
-                ["weights"] = model.Precision switch
-                {
-                    WeightPrecision.BFloat16 => "bfloat16",
-                    WeightPrecision.Integer8 => "int8",
-                    _ => "float32",
-                },
+                ["weights"] = Spellings.Of(model.Precision),
                 ["files"] = modelFiles,
             },
             ["input"] = new JsonObject
@@ -196,7 +192,7 @@ public static class ExtractionRun
                 ["file"] = Path.GetFileName(reader.Path),
                 ["bytes"] = reader.TotalBytes,
                 ["sha256"] = Sha256(reader.Path),
-                ["format"] = reader.Format.ToString(),
+                ["format"] = Spellings.Of(reader.Format),
                 ["text_field"] = options.Fields.Text,
                 ["id_field"] = options.Fields.Id,
                 ["label_field"] = options.Fields.Label,
@@ -206,10 +202,10 @@ public static class ExtractionRun
             ["prompt"] = x.Prompt.Source,
             ["prompt_tokens"] = extractor.PromptTokens,
             ["text_token_limit"] = extractor.TextTokenLimit,
-            ["truncation"] = x.Truncation == TextTruncation.KeepHead ? "keep-head" : "keep-tail",
+            ["truncation"] = Spellings.Of(x.Truncation),
             ["leading_space"] = x.LeadingSpace,
             ["features"] = features,
-            ["precision"] = options.Precision == FeaturePrecision.Binary16 ? "float16" : "float32",
+            ["precision"] = Spellings.Of(options.Precision),
             ["outputs"] = files,
             ["strict"] = options.Strict,
         };
@@ -227,7 +223,7 @@ public static class ExtractionRun
 
     private static void Finish(string folder, CommitPoint state, OutputFile[] outputs, RunShard? shard, long inputRows)
     {
-        RunRecord.Create(state.Settings, new RunCounts(state.Consumed, state.Rows, state.Rejected, state.TruncatedRows, state.Tokens),
+        RunRecord.Create(state.Settings, new RunCounts(state.Read, state.Accepted, state.Rejected, state.TruncatedRows, state.Tokens),
             outputs.Select(o => (o.FileName, o.Descr, o.Output.Width)), shard, inputRows).Write(folder);
 
         double seconds = state.Sessions.Sum(s => s!["seconds"]!.GetValue<double>());
@@ -235,7 +231,7 @@ public static class ExtractionRun
         {
             ["sessions"] = state.Sessions.DeepClone(),
             ["seconds"] = Math.Round(seconds, 3),
-            ["rows_per_second"] = seconds > 0 ? Math.Round(state.Rows / seconds, 2) : 0,
+            ["rows_per_second"] = seconds > 0 ? Math.Round(state.Accepted / seconds, 2) : 0,
             ["tokens_per_second"] = seconds > 0 ? Math.Round(state.Tokens / seconds, 1) : 0,
             ["peak_rss_bytes"] = Process.GetCurrentProcess().PeakWorkingSet64,
         };
@@ -266,7 +262,7 @@ public static class ExtractionRun
     private sealed class BatchReporter(IProgress<RunProgress> progress, CommitPoint state, TextInputReader reader, Stopwatch clock)
         : IProgress<ExtractionProgress>
     {
-        private readonly long _rowsBefore = state.Rows;
+        private readonly long _acceptedBefore = state.Accepted;
         private long _groupRecords, _groupRejected;
 
         /// <summary>Counts the records of the group being computed, which the state only holds once it is committed.</summary>
@@ -277,7 +273,7 @@ public static class ExtractionRun
         }
 
         public void Report(ExtractionProgress value) =>
-            progress.Report(new RunProgress(_rowsBefore + value.Rows, state.Consumed + _groupRecords, state.Rejected + _groupRejected, value.Tokens,
+            progress.Report(new RunProgress(_acceptedBefore + value.Rows, state.Read + _groupRecords, state.Rejected + _groupRejected, value.Tokens,
                 reader.TotalBytes == 0 ? 1 : Math.Min(1.0, (double)reader.BytesRead / reader.TotalBytes), clock.Elapsed));
     }
 
@@ -311,7 +307,7 @@ public static class ExtractionRun
                 string path = Path.Combine(folder, outputs[i].FileName);
                 _arrays[i] = fresh
                     ? NpyAppender.Create(path, outputs[i].Descr, outputs[i].Output.Width)
-                    : NpyAppender.Reopen(path, outputs[i].Descr, outputs[i].Output.Width, state.Rows);
+                    : NpyAppender.Reopen(path, outputs[i].Descr, outputs[i].Output.Width, state.Accepted);
             }
             _rows = RunTable.Rows.Open(folder, fresh, state.RowsBytes);
             _rejects = RunTable.Rejects.Open(folder, fresh, state.RejectsBytes);
@@ -377,7 +373,7 @@ public static class ExtractionRun
         {
             foreach (NpyAppender a in _arrays)
             {
-                a.Commit(state.Rows);
+                a.Commit(state.Accepted);
             }
             _rows.Flush(flushToDisk: true);
             _rejects.Flush(flushToDisk: true);

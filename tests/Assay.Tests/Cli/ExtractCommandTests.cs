@@ -172,7 +172,7 @@ public sealed class ExtractCommandTests
         try
         {
             using var doc = System.Text.Json.JsonDocument.Parse(File.ReadAllBytes(progressFile));
-            return doc.RootElement.GetProperty("rows").GetInt64();
+            return doc.RootElement.GetProperty("accepted").GetInt64();
         }
         catch (Exception e) when (e is IOException or System.Text.Json.JsonException)
         {

@@ -109,7 +109,7 @@ public sealed class StudyTests(StudyFixture study) : IClassFixture<StudyFixture>
     {
         StudyResult r = study.Rerun();
         Assert.Equal(3 * 3, r.Cells.Count);
-        string md = File.ReadAllText(Path.Combine(study.Folder, StudyReport.MarkdownFile));
+        string md = File.ReadAllText(Path.Combine(study.Folder, StudyFolder.MarkdownFile));
         Assert.Equal(md.TrimEnd(), study.Printed[..md.Length].TrimEnd());
         StudyCell final = Cell(r, "final", "hidden");
         Assert.Contains(string.Create(CultureInfo.InvariantCulture, $"| final | {r.Models[2].CrossEntropy.NatsPerToken:F3} | kind-of | {final.Score.Accuracy * 100:F1} ("), md, StringComparison.Ordinal);
@@ -117,7 +117,7 @@ public sealed class StudyTests(StudyFixture study) : IClassFixture<StudyFixture>
         Assert.Equal(["hidden", "cmean"], r.Curves.Select(c => c.Feature));
         Assert.Contains("| kind-of | hidden |", md, StringComparison.Ordinal);
 
-        using CsvReader csv = CsvReader.FromFile(Path.Combine(study.Folder, StudyReport.CsvFile), new CsvReaderOptions { Separator = ',' });
+        using CsvReader csv = CsvReader.FromFile(Path.Combine(study.Folder, StudyFolder.CsvFile), new CsvReaderOptions { Separator = ',' });
         int rows = 0;
         while (csv.Read())
         {

@@ -105,6 +105,7 @@ public sealed class GemmTests
     }
 
     [Theory]
+    [InlineData(WeightPrecision.Binary32, 95)]
     [InlineData(WeightPrecision.BFloat16, 96)]
     [InlineData(WeightPrecision.Integer8, 97)]
     public void Reduced_precision_panels_give_the_same_bits_on_every_path_and_with_the_activation_fused(WeightPrecision precision, int k)

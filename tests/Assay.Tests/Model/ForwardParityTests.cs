@@ -62,6 +62,38 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
             spec.DType == "BF16" ? [WeightPrecision.Binary32, WeightPrecision.BFloat16] : [WeightPrecision.Binary32]);
     }
 
+    /// <summary>
+    /// Every kernel path gives the same bits through the whole model (hidden states of every layer and all logits), as
+    /// each output element is one in-order FMA chain on every path; the scalar path is the reference.
+    /// </summary>
+    [Theory]
+    [InlineData("odd-heads-width40")]
+    [InlineData("width136-long")]
+    [InlineData("untied-f16-width36")]
+    public void Every_kernel_path_gives_the_same_bits_through_the_model(string name)
+    {
+        (CheckpointSpec spec, int[] lengths) = Cases[name];
+        LanguageModel model = LanguageModel.Open(Checkpoints.Folder(spec));
+        int[][] sequences = RandomSequences(lengths, spec.Vocabulary, seed: 9);
+        var options = new ForwardOptions { HiddenLayers = [.. Enumerable.Range(0, spec.Layers + 1)], Logits = LogitPositions.All };
+        ForwardResult scalar = model.Forward(sequences, options, KernelVariant.Scalar);
+        foreach (KernelVariant v in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
+        {
+            ForwardResult r = model.Forward(sequences, options, v);
+            for (int s = 0; s < sequences.Length; s++)
+            {
+                for (int t = 0; t < sequences[s].Length; t++)
+                {
+                    for (int l = 0; l <= spec.Layers; l++)
+                    {
+                        Assert.True(scalar.HiddenState(l, s, t).SequenceEqual(r.HiddenState(l, s, t)), $"{v}: layer {l}, sequence {s}, position {t}");
+                    }
+                    Assert.True(scalar.Logits(s, t).SequenceEqual(r.Logits(s, t)), $"{v}: logits of sequence {s}, position {t}");
+                }
+            }
+        }
+    }
+
     /// <summary>The published GPT-2 small shape at full context (1024 tokens) and at lengths 7 and 1.</summary>
     [Fact]
     public void Matches_numpy_reference_at_gpt2_small_shape()

@@ -1,4 +1,5 @@
 using System.Text;
+using System.Text.Encodings.Web;
 using System.Text.Json;
 using System.Text.Json.Nodes;
 
@@ -13,12 +14,13 @@ internal static class AtomicFile
     /// <summary>The suffix of the temporary file (a folder's owner treats such files as its own).</summary>
     public const string TemporarySuffix = ".tmp";
 
-    private static readonly JsonSerializerOptions Indented = new() { WriteIndented = true };
+    // Relaxed escaping writes "<f4" and "+" as themselves (control characters and quotes are still escaped).
+    private static readonly JsonSerializerOptions Indented = new() { WriteIndented = true, Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping };
 
     /// <summary>Writes <paramref name="node"/> as indented JSON and a final line break.</summary>
     public static void WriteJson(string path, JsonNode node) => Write(path, file =>
     {
-        using (var writer = new Utf8JsonWriter(file, new JsonWriterOptions { Indented = true }))
+        using (var writer = new Utf8JsonWriter(file, new JsonWriterOptions { Indented = true, Encoder = JavaScriptEncoder.UnsafeRelaxedJsonEscaping }))
         {
             node.WriteTo(writer, Indented);
         }

@@ -8,9 +8,11 @@ internal sealed class CommitPoint
 {
     public required JsonObject Settings { get; init; }
 
-    public long Consumed { get; set; }
+    /// <summary>Input records read (accepted and rejected) up to the commit.</summary>
+    public long Read { get; set; }
 
-    public long Rows { get; set; }
+    /// <summary>Rows written up to the commit.</summary>
+    public long Accepted { get; set; }
 
     public long Rejected { get; set; }
 
@@ -41,8 +43,8 @@ internal sealed class CommitPoint
         return new CommitPoint
         {
             Settings = (JsonObject)o["settings"]!.DeepClone(),
-            Consumed = o["consumed_records"]!.GetValue<long>(),
-            Rows = o["rows"]!.GetValue<long>(),
+            Read = o["read"]!.GetValue<long>(),
+            Accepted = o["accepted"]!.GetValue<long>(),
             Rejected = o["rejected"]!.GetValue<long>(),
             TruncatedRows = o["truncated_rows"]!.GetValue<long>(),
             Tokens = o["tokens"]!.GetValue<long>(),
@@ -59,8 +61,8 @@ internal sealed class CommitPoint
         return new CommitPoint
         {
             Settings = (JsonObject)record.Settings.DeepClone(),
-            Consumed = counts.Read,
-            Rows = counts.Accepted,
+            Read = counts.Read,
+            Accepted = counts.Accepted,
             Rejected = counts.Rejected,
             TruncatedRows = counts.TruncatedRows,
             Tokens = counts.Tokens,
@@ -74,8 +76,8 @@ internal sealed class CommitPoint
     private JsonObject ToJson() => new()
     {
         ["settings"] = Settings.DeepClone(),
-        ["consumed_records"] = Consumed,
-        ["rows"] = Rows,
+        ["read"] = Read,
+        ["accepted"] = Accepted,
         ["rejected"] = Rejected,
         ["truncated_rows"] = TruncatedRows,
         ["tokens"] = Tokens,
@@ -85,5 +87,5 @@ internal sealed class CommitPoint
     };
 
     public RunSummary Summary(bool alreadyComplete, TimeSpan elapsed) =>
-        new(Consumed, Rows, Rejected, TruncatedRows, Tokens, 0, alreadyComplete, elapsed);
+        new(Read, Accepted, Rejected, TruncatedRows, Tokens, 0, alreadyComplete, elapsed);
 }

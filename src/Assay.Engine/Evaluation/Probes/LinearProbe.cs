@@ -5,8 +5,8 @@ namespace Assay.Evaluation;
 /// <summary>How a probe is fitted.</summary>
 public sealed record ProbeOptions
 {
-    /// <summary>Regularization strengths C tried by cross-validation (scikit-learn's C: larger = weaker penalty).</summary>
-    public IReadOnlyList<double> Strengths { get; init; } = [1e-3, 1e-2, 1e-1, 1, 10, 100];
+    /// <summary>The values of C, the inverse regularization strength, tried by cross-validation (scikit-learn's C: larger = weaker L2 penalty).</summary>
+    public IReadOnlyList<double> InverseRegularizations { get; init; } = [1e-3, 1e-2, 1e-1, 1, 10, 100];
 
     /// <summary>Folds of the stratified cross-validation.</summary>
     public int Folds { get; init; } = 5;
@@ -30,15 +30,15 @@ public sealed class LinearProbe
         Mean = mean;
         Scale = scale;
         _model = model;
-        Strength = c;
+        InverseRegularization = c;
         Search = search;
     }
 
     /// <summary>Class names, ordinal order; class i is probability i.</summary>
     public IReadOnlyList<string> Classes { get; }
 
-    /// <summary>The chosen C.</summary>
-    public double Strength { get; }
+    /// <summary>The chosen C, the inverse regularization strength.</summary>
+    public double InverseRegularization { get; }
 
     /// <summary>Each C tried with its cross-validated mean log loss and accuracy.</summary>
     public IReadOnlyList<(double C, double LogLoss, double Accuracy)> Search { get; }
@@ -58,13 +58,13 @@ public sealed class LinearProbe
         {
             throw new ArgumentException($"expected {n} × {d} features and {n} labels; got {x.Length} values and {labels.Count} labels");
         }
-        string[] classes = [.. labels.Distinct(StringComparer.Ordinal).Order(StringComparer.Ordinal)];
+        LabelIndex index = LabelIndex.Sorted(labels);
+        string[] classes = [.. index.Classes];
         if (classes.Length < 2)
         {
             throw new ArgumentException($"a probe needs at least two classes; the labels hold {classes.Length}");
         }
-        var index = classes.Select((c, i) => (c, i)).ToDictionary(p => p.c, p => p.i, StringComparer.Ordinal);
-        int[] y = [.. labels.Select(l => index[l])];
+        int[] y = index.Indices(labels);
         string? small = classes.FirstOrDefault(c => labels.Count(l => l == c) < options.Folds);
         if (small != null)
         {
@@ -75,7 +75,7 @@ public sealed class LinearProbe
         double[] z = Standardize(x, n, d, mean, scale);
         int[] fold = Folds(y, classes.Length, options.Folds, options.Seed);
         var search = new List<(double C, double LogLoss, double Accuracy)>();
-        foreach (double c in options.Strengths)
+        foreach (double c in options.InverseRegularizations)
         {
             double loss = 0;
             int correct = 0;
@@ -153,7 +153,7 @@ public sealed class LinearProbe
     public JsonObject ToJson() => new()
     {
         ["classes"] = new JsonArray([.. Classes.Select(c => JsonValue.Create(c))]),
-        ["c"] = Strength,
+        ["c"] = InverseRegularization,
         ["search"] = new JsonArray([.. Search.Select(s => new JsonObject { ["c"] = s.C, ["cv_log_loss"] = s.LogLoss, ["cv_accuracy"] = s.Accuracy })]),
         ["mean"] = new JsonArray([.. Mean.Select(v => JsonValue.Create(v))]),
         ["scale"] = new JsonArray([.. Scale.Select(v => JsonValue.Create(v))]),

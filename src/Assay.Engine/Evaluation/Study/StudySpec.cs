@@ -139,7 +139,7 @@ public sealed partial record StudySpec
         {
             probe = probe with
             {
-                Strengths = o["strengths"] is JsonArray sa && sa.Count > 0
+                InverseRegularizations = o["strengths"] is JsonArray sa && sa.Count > 0
                     && sa.All(s => s is JsonValue v && v.TryGetValue(out double c) && c > 0 && double.IsFinite(c))
                     ? [.. sa.Select(s => s!.GetValue<double>())]
                     : throw new StudyException(path, "strengths: expected a non-empty list of positive numbers"),
@@ -173,7 +173,7 @@ public sealed partial record StudySpec
         ["features"] = new JsonArray([.. Features.Select(f => JsonValue.Create(f))]),
         ["verbalizer"] = Verbalizer,
         ["folds"] = Probe.Folds,
-        ["strengths"] = new JsonArray([.. Probe.Strengths.Select(s => JsonValue.Create(s))]),
+        ["strengths"] = new JsonArray([.. Probe.InverseRegularizations.Select(s => JsonValue.Create(s))]),
     };
 
     private static string Text(string path, JsonObject o, string field) =>

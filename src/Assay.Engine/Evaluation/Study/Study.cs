@@ -14,9 +14,9 @@ namespace Assay.Evaluation;
 /// <param name="Feature">Feature kind as the study file names it.</param>
 /// <param name="Width">Features a row (0 for zero-shot).</param>
 /// <param name="TrainRows">Rows the probe was fitted on (0 for zero-shot).</param>
-/// <param name="Strength">The C chosen by cross-validation (null for zero-shot).</param>
+/// <param name="InverseRegularization">C, the inverse regularization strength chosen by cross-validation (null for zero-shot).</param>
 /// <param name="Score">Test accuracy with its bootstrap interval, log loss, macro-F1 and confusion.</param>
-public sealed record StudyCell(string Model, string Prompt, string Feature, int Width, int TrainRows, double? Strength, ProbeReport Score);
+public sealed record StudyCell(string Model, string Prompt, string Feature, int Width, int TrainRows, double? InverseRegularization, ClassificationReport Score);
 
 /// <summary>A model of a study with its cross-entropy on the study's test texts (no prompt).</summary>
 public sealed record StudyModel(string Name, string Folder, CrossEntropyResult CrossEntropy);
@@ -31,7 +31,7 @@ public sealed record StudyCurve(string Prompt, string Feature, IReadOnlyList<(do
 /// <param name="Models">Each model with its cross-entropy.</param>
 /// <param name="Cells">Every model × prompt × feature, in that order.</param>
 /// <param name="Curves">Test log loss against cross-entropy for each prompt and probed feature (none with fewer than 3 distinct cross-entropies).</param>
-public sealed record StudyResult(StudySpec Spec, IReadOnlyList<string> Classes, ProbeReport Prior, IReadOnlyList<StudyModel> Models, IReadOnlyList<StudyCell> Cells, IReadOnlyList<StudyCurve> Curves);
+public sealed record StudyResult(StudySpec Spec, IReadOnlyList<string> Classes, ClassificationReport Prior, IReadOnlyList<StudyModel> Models, IReadOnlyList<StudyCell> Cells, IReadOnlyList<StudyCurve> Curves);
 
 /// <summary>
 /// Runs a study grid into a folder: the subsampled task (data/), one extraction run per model, prompt and split
@@ -41,9 +41,6 @@ public sealed record StudyResult(StudySpec Spec, IReadOnlyList<string> Classes, 
 /// </summary>
 public static class Study
 {
-    /// <summary>The resolved study file as stored in the folder.</summary>
-    public const string SpecFile = "study.json";
-
     private static readonly JsonSerializerOptions Indented = new() { WriteIndented = true };
 
     /// <summary>Runs (or continues) the study.</summary>
@@ -54,16 +51,16 @@ public static class Study
         ArgumentNullException.ThrowIfNull(outFolder);
         outFolder = Path.GetFullPath(outFolder);
         Prepare(spec, outFolder, overwrite);
-        string data = Directory.CreateDirectory(Path.Combine(outFolder, "data")).FullName;
+        string data = Directory.CreateDirectory(Path.Combine(outFolder, StudyFolder.DataFolder)).FullName;
         string trainFile = Subsample(spec.Train, spec.TrainEvery, spec.Probe.Folds, Path.Combine(data, "train.jsonl"));
         string testFile = Subsample(spec.Test, spec.TestEvery, 1, Path.Combine(data, "test.jsonl"));
-        string cells = Directory.CreateDirectory(Path.Combine(outFolder, "cells")).FullName;
+        string cells = Directory.CreateDirectory(Path.Combine(outFolder, StudyFolder.CellsFolder)).FullName;
         Verbalizer? verbalizer = spec.Verbalizer == null ? null : Verbalizer.Load(spec.Verbalizer);
         string[] testTexts = [.. ReadRecords(testFile).Select(r => r.Text!)];
 
         var models = new List<StudyModel>();
         var results = new List<StudyCell>();
-        string[] classes = [.. ReadRecords(trainFile).Select(r => r.Label).Distinct(StringComparer.Ordinal).Order(StringComparer.Ordinal)];
+        LabelIndex classes = LabelIndex.Sorted(ReadRecords(trainFile).Select(r => r.Label));
         foreach ((string name, string folder) in spec.Models)
         {
             LanguageModel model = LanguageModel.Open(folder);
@@ -74,7 +71,7 @@ public static class Study
             {
                 cancellationToken.ThrowIfCancellationRequested();
                 (FeatureRequest[] requests, Dictionary<string, string> stems) = Requests(spec, model, verbalizer);
-                string runs = Path.Combine(outFolder, "runs", name, prompt);
+                string runs = Path.Combine(outFolder, StudyFolder.RunsFolder, name, prompt);
                 var options = new RunOptions
                 {
                     Extraction = new ExtractionOptions { Prompt = PromptTemplate.Parse(template), Features = requests },
@@ -96,33 +93,32 @@ public static class Study
                         () => feature == "zero-shot"
                             ? ZeroShot(name, prompt, Path.Combine(runs, "test"), verbalizer!, classes)
                             : Probe(name, prompt, feature, stems[feature], Path.Combine(runs, "train"), Path.Combine(runs, "test"), spec.Probe),
-                        WriteCell, ReadCell);
+                        c => WriteCell(c, classes.Classes), ReadCell);
                     results.Add(cell);
                     log?.Report(string.Create(CultureInfo.InvariantCulture,
-                        $"{name}/{prompt}/{feature}: accuracy {cell.Score.Accuracy:P1} ({cell.Score.AccuracyLow:P1} – {cell.Score.AccuracyHigh:P1}), log loss {cell.Score.LogLoss:F3}{(cell.Strength is double c ? $", C = {c:G3}" : "")}"));
+                        $"{name}/{prompt}/{feature}: accuracy {cell.Score.Accuracy:P1} ({cell.Score.AccuracyLow:P1} – {cell.Score.AccuracyHigh:P1}), log loss {cell.Score.LogLoss:F3}{(cell.InverseRegularization is double c ? $", C = {c:G3}" : "")}"));
                 }
             }
         }
-        return new StudyResult(spec, classes, Prior(classes, trainFile, testFile), models, results, Curves(spec, models, results));
+        return new StudyResult(spec, classes.Classes, Prior(classes, trainFile, testFile), models, results, Curves(spec, models, results));
     }
 
-    private static ProbeReport Prior(string[] classes, string trainFile, string testFile)
+    private static ClassificationReport Prior(LabelIndex classes, string trainFile, string testFile)
     {
-        var index = classes.Select((c, i) => (c, i)).ToDictionary(x => x.c, x => x.i, StringComparer.Ordinal);
-        double[] frequency = new double[classes.Length];
+        double[] frequency = new double[classes.Count];
         string[] train = [.. ReadRecords(trainFile).Select(r => r.Label)];
-        foreach (string label in train)
+        foreach (int label in classes.Indices(train))
         {
-            frequency[index[label]] += 1.0 / train.Length;
+            frequency[label] += 1.0 / train.Length;
         }
-        int[] truth = [.. ReadRecords(testFile).Select(r => index.TryGetValue(r.Label, out int i) ? i
+        int[] truth = [.. ReadRecords(testFile).Select(r => classes.TryGetIndex(r.Label, out int i) ? i
             : throw new StudyException(testFile, $"test label \"{r.Label}\" has no training rows"))];
-        double[] p = new double[truth.Length * classes.Length];
+        double[] p = new double[truth.Length * classes.Count];
         for (int i = 0; i < truth.Length; i++)
         {
-            frequency.CopyTo(p, i * classes.Length);
+            frequency.CopyTo(p, i * classes.Count);
         }
-        return ProbeReport.Score(p, truth, classes.Length);
+        return ClassificationReport.Score(p, truth, classes.Count);
     }
 
     /// <summary>Test log loss against cross-entropy per prompt and probed feature (not zero-shot, which fits nothing), where at least 3 models differ in cross-entropy.</summary>
@@ -181,35 +177,25 @@ public static class Study
     {
         RunFeatures train = RunFeatures.Load(trainRun, stem), test = RunFeatures.Load(testRun, stem);
         LinearProbe probe = LinearProbe.Fit(train.Values, train.Rows, train.Width, train.Labels, options);
-        var index = probe.Classes.Select((c, i) => (c, i)).ToDictionary(x => x.c, x => x.i, StringComparer.Ordinal);
-        string? unknown = test.Labels.FirstOrDefault(l => !index.ContainsKey(l));
-        if (unknown != null)
-        {
-            throw new StudyException(testRun, $"test label \"{unknown}\" has no training rows");
-        }
-        ProbeReport score = ProbeReport.Score(probe.Predict(test.Values, test.Rows, test.Width), [.. test.Labels.Select(l => index[l])], probe.Classes.Count);
-        return new StudyCell(model, prompt, feature, train.Width, train.Rows, probe.Strength, score);
+        ClassificationReport score = ProbeScorer.Score(probe, test, testRun).Report;
+        return new StudyCell(model, prompt, feature, train.Width, train.Rows, probe.InverseRegularization, score);
     }
 
     /// <summary>The verbalizer's label distribution (as assay zero-shot reports it), in the probe's class order.</summary>
-    private static StudyCell ZeroShot(string model, string prompt, string testRun, Verbalizer verbalizer, string[] classes)
+    private static StudyCell ZeroShot(string model, string prompt, string testRun, Verbalizer verbalizer, LabelIndex classes)
     {
-        if (!verbalizer.Labels.Order(StringComparer.Ordinal).SequenceEqual(classes, StringComparer.Ordinal))
+        if (!verbalizer.Labels.Order(StringComparer.Ordinal).SequenceEqual(classes.Classes, StringComparer.Ordinal))
         {
-            string missing = classes.Except(verbalizer.Labels, StringComparer.Ordinal).Concat(verbalizer.Labels.Except(classes, StringComparer.Ordinal)).First();
+            string missing = classes.Classes.Except(verbalizer.Labels, StringComparer.Ordinal).Concat(verbalizer.Labels.Except(classes.Classes, StringComparer.Ordinal)).First();
             throw new StudyException(testRun, $"the verbalizer's labels and the training labels differ (\"{missing}\" is in one only); zero-shot needs the same labels");
         }
         RunFeatures test = RunFeatures.Load(testRun, "words.first");
-        var index = classes.Select((l, i) => (l, i)).ToDictionary(x => x.l, x => x.i, StringComparer.Ordinal);
-        string? unknown = test.Labels.FirstOrDefault(l => !index.ContainsKey(l));
+        string? unknown = classes.FirstUnknown(test.Labels);
         if (unknown != null)
         {
             throw new StudyException(testRun, $"test label \"{unknown}\" is not in the verbalizer");
         }
-        int k = classes.Length;
-        int[] position = [.. verbalizer.Labels.Select(l => index[l])];
-        double[] p = new double[test.Rows * k];
-        double[] scores = new double[k];
+        var scorer = new ZeroShotScorer(verbalizer, classes, logLikelihoods: false);
         float[] row = new float[test.Width];
         for (int i = 0; i < test.Rows; i++)
         {
@@ -217,24 +203,18 @@ public static class Study
             {
                 row[j] = (float)test.Values[(i * test.Width) + j];
             }
-            verbalizer.Distribution(row, logLikelihoods: false, scores);
-            for (int j = 0; j < k; j++)
-            {
-                p[(i * k) + position[j]] = scores[j];
-            }
+            scorer.Add(row, classes.Indices([test.Labels[i]])[0]);
         }
-        ProbeReport score = ProbeReport.Score(p, [.. test.Labels.Select(l => index[l])], k);
-        return new StudyCell(model, prompt, "zero-shot", 0, 0, null, score);
+        return new StudyCell(model, prompt, "zero-shot", 0, 0, null, scorer.Report());
     }
 
     private static void Prepare(StudySpec spec, string folder, bool overwrite)
     {
         Directory.CreateDirectory(folder);
-        string specPath = Path.Combine(folder, SpecFile);
+        string specPath = Path.Combine(folder, StudyFolder.SpecFile);
         JsonObject current = spec.ToJson();
-        string[] ours = [SpecFile, "data", "runs", "cells"];
         string[] entries = [.. Directory.EnumerateFileSystemEntries(folder).Select(e => Path.GetFileName(e)!)];
-        if (entries.Any(e => !ours.Contains(e) && !IsReport(e)))
+        if (entries.Any(e => !StudyFolder.Owns(e)))
         {
             throw new StudyException(folder, "holds files that are not part of a study; give an empty or new folder");
         }
@@ -250,7 +230,7 @@ public static class Study
         }
         if (!overwrite && entries.Length > 0)
         {
-            throw new StudyException(folder, $"holds parts of a study without its {SpecFile}; pass --overwrite to start over");
+            throw new StudyException(folder, $"holds parts of a study without its {StudyFolder.SpecFile}; pass --overwrite to start over");
         }
         // Starting over: the earlier study's parts and reports go, so nothing stale stays beside the new results.
         foreach (string name in entries)
@@ -267,9 +247,6 @@ public static class Study
         }
         AtomicFile.WriteText(specPath, current.ToJsonString(Indented) + "\n");
     }
-
-    /// <summary>Files a report writer puts beside the study's own (results tables and plots).</summary>
-    private static bool IsReport(string name) => name.StartsWith("results", StringComparison.Ordinal) || name.EndsWith(".png", StringComparison.Ordinal);
 
     /// <summary>
     /// Every k-th record of each label of a task file (in file order), and at least the first <paramref name="least"/>
@@ -331,40 +308,18 @@ public static class Study
     private static CrossEntropyResult ReadCrossEntropy(JsonObject o) =>
         new(o["texts"]!.GetValue<long>(), o["tokens"]!.GetValue<long>(), o["bytes"]!.GetValue<long>(), o["nats"]!.GetValue<double>());
 
-    private static JsonObject WriteCell(StudyCell c)
+    private static JsonObject WriteCell(StudyCell c, IReadOnlyList<string> classes) => new()
     {
-        int k = c.Score.Confusion.GetLength(0);
-        return new JsonObject
-        {
-            ["model"] = c.Model,
-            ["prompt"] = c.Prompt,
-            ["feature"] = c.Feature,
-            ["width"] = c.Width,
-            ["train_rows"] = c.TrainRows,
-            ["c"] = c.Strength,
-            ["test_rows"] = c.Score.Rows,
-            ["accuracy"] = c.Score.Accuracy,
-            ["accuracy_95"] = new JsonArray(c.Score.AccuracyLow, c.Score.AccuracyHigh),
-            ["log_loss"] = c.Score.LogLoss,
-            ["macro_f1"] = c.Score.MacroF1,
-            ["confusion"] = new JsonArray([.. Enumerable.Range(0, k).Select(i => new JsonArray([.. Enumerable.Range(0, k).Select(j => JsonValue.Create(c.Score.Confusion[i, j]))]))]),
-        };
-    }
+        ["model"] = c.Model,
+        ["prompt"] = c.Prompt,
+        ["feature"] = c.Feature,
+        ["width"] = c.Width,
+        ["train_rows"] = c.TrainRows,
+        ["c"] = c.InverseRegularization,
+        ["score"] = c.Score.ToJson(classes),
+    };
 
-    private static StudyCell ReadCell(JsonObject o)
-    {
-        JsonArray rows = o["confusion"]!.AsArray();
-        var confusion = new int[rows.Count, rows.Count];
-        for (int i = 0; i < rows.Count; i++)
-        {
-            for (int j = 0; j < rows.Count; j++)
-            {
-                confusion[i, j] = rows[i]![j]!.GetValue<int>();
-            }
-        }
-        var score = new ProbeReport(o["test_rows"]!.GetValue<int>(), o["accuracy"]!.GetValue<double>(), o["accuracy_95"]![0]!.GetValue<double>(),
-            o["accuracy_95"]![1]!.GetValue<double>(), o["log_loss"]!.GetValue<double>(), o["macro_f1"]!.GetValue<double>(), confusion);
-        return new StudyCell(o["model"]!.GetValue<string>(), o["prompt"]!.GetValue<string>(), o["feature"]!.GetValue<string>(),
-            o["width"]!.GetValue<int>(), o["train_rows"]!.GetValue<int>(), o["c"]?.GetValue<double>(), score);
-    }
+    private static StudyCell ReadCell(JsonObject o) =>
+        new(o["model"]!.GetValue<string>(), o["prompt"]!.GetValue<string>(), o["feature"]!.GetValue<string>(),
+            o["width"]!.GetValue<int>(), o["train_rows"]!.GetValue<int>(), o["c"]?.GetValue<double>(), ClassificationReport.FromJson(o["score"]!.AsObject()));
 }

@@ -1,0 +1,45 @@
+namespace Assay.Evaluation;
+
+/// <summary>
+/// The layout of a study folder, its one owner: the resolved study file, the study's cached parts (the subsampled
+/// task, the extraction runs, the scored cells), and the report files a report writer puts beside them (tables and
+/// one accuracy plot and one loss-against-cross-entropy plot per prompt). Anything else in the folder is foreign.
+/// </summary>
+public static class StudyFolder
+{
+    /// <summary>The resolved study file as stored in the folder.</summary>
+    public const string SpecFile = "study.json";
+
+    /// <summary>The subsampled task files.</summary>
+    public const string DataFolder = "data";
+
+    /// <summary>One extraction run per model, prompt and split: runs/MODEL/PROMPT/train|test.</summary>
+    public const string RunsFolder = "runs";
+
+    /// <summary>Each cell's score and each model's cross-entropy.</summary>
+    public const string CellsFolder = "cells";
+
+    /// <summary>The report's Markdown tables.</summary>
+    public const string MarkdownFile = "results.md";
+
+    /// <summary>The report's table of every cell.</summary>
+    public const string CsvFile = "results.csv";
+
+    private const string AccuracyPrefix = "accuracy.";
+
+    private const string LossPrefix = "loss-vs-cross-entropy.";
+
+    private const string PlotSuffix = ".png";
+
+    /// <summary>The accuracy plot of one prompt.</summary>
+    public static string AccuracyPlot(string prompt) => AccuracyPrefix + prompt + PlotSuffix;
+
+    /// <summary>The loss-against-cross-entropy plot of one prompt.</summary>
+    public static string LossPlot(string prompt) => LossPrefix + prompt + PlotSuffix;
+
+    /// <summary>Whether an entry of this name belongs in a study folder (a part of the study or a report file).</summary>
+    internal static bool Owns(string name) =>
+        name is SpecFile or DataFolder or RunsFolder or CellsFolder or MarkdownFile or CsvFile
+        || (name.EndsWith(PlotSuffix, StringComparison.Ordinal)
+            && (name.StartsWith(AccuracyPrefix, StringComparison.Ordinal) || name.StartsWith(LossPrefix, StringComparison.Ordinal)));
+}

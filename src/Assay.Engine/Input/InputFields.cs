@@ -1,0 +1,20 @@
+namespace Assay.Input;
+
+/// <summary>Which fields or columns of JSONL, CSV and TSV input hold the text, the row id and the label.</summary>
+public sealed record InputFields
+{
+    /// <summary>The text field. Required in every record.</summary>
+    public string Text { get; init; } = "text";
+
+    /// <summary>The id field. When <see cref="IdRequired"/> is off, a record without it gets its line number.</summary>
+    public string Id { get; init; } = "id";
+
+    /// <summary>The label field. When <see cref="LabelRequired"/> is off, a record without it gets an empty label.</summary>
+    public string Label { get; init; } = "label";
+
+    /// <summary>Reject records that lack the id field (set when the user names the field).</summary>
+    public bool IdRequired { get; init; }
+
+    /// <summary>Reject records that lack the label field (set when the user names the field).</summary>
+    public bool LabelRequired { get; init; }
+}
