@@ -34,9 +34,3 @@ public sealed class FeatureRow
     public ReadOnlySpan<int> TokenIds(int output) =>
         _ids[output] ?? throw new InvalidOperationException($"output {output} holds floating values; read it with Values");
 }
-
-/// <summary>How far an extraction has come.</summary>
-/// <param name="Rows">Texts whose forward pass is done.</param>
-/// <param name="Tokens">Tokens run through the model, candidate completions included.</param>
-/// <param name="Elapsed">Time since the extraction started.</param>
-public readonly record struct ExtractionProgress(long Rows, long Tokens, TimeSpan Elapsed);

@@ -39,6 +39,9 @@ public sealed class LanguageModel
     /// <summary>The kernel path forward passes use (see <see cref="KernelSelector"/>).</summary>
     public static KernelVariant Kernels => KernelSelector.Current;
 
+    /// <summary>The int8 path forward passes use with <see cref="WeightPrecision.Integer8"/> weights (see <see cref="KernelSelector"/>).</summary>
+    public static Int8Kernel Int8Kernels => KernelSelector.CurrentInt8;
+
     /// <summary>How the matrices are held in memory.</summary>
     public WeightPrecision Precision => _weights.Precision;
 

@@ -6,7 +6,6 @@ using System.Text.Json;
 using System.Text.Json.Nodes;
 using Assay.Features;
 using Assay.Input;
-using Assay.Kernels;
 using Assay.Model;
 using CsvHelper;
 using Assay.Weights;
@@ -175,7 +174,7 @@ public static class ExtractionRun
         {
             ["format_version"] = FormatVersion,
             ["engine_version"] = version,
-            ["kernels"] = KernelSelector.Current.ToString(),
+            ["kernels"] = LanguageModel.Kernels.ToString(),
             ["model"] = new JsonObject
             {
                 ["folder"] = Path.GetFileName(Path.TrimEndingDirectorySeparator(Path.GetFullPath(model.Folder))),
@@ -212,7 +211,7 @@ public static class ExtractionRun
         if (model.Precision == WeightPrecision.Integer8)
         {
             // The int8 path is part of the kernels of an int8 run (its sums are exact on every path, but say which ran).
-            settings.Insert(settings.IndexOf("kernels") + 1, "int8_kernels", KernelSelector.CurrentInt8.ToString());
+            settings.Insert(settings.IndexOf("kernels") + 1, "int8_kernels", LanguageModel.Int8Kernels.ToString());
         }
         if (options.Shard is { } shard)
         {

@@ -8,31 +8,6 @@ using Assay.Output;
 
 namespace Assay.Evaluation;
 
-/// <summary>One cell of a study: a feature kind of one model under one prompt, scored on the test texts.</summary>
-/// <param name="Model">Model name.</param>
-/// <param name="Prompt">Prompt name.</param>
-/// <param name="Feature">Feature kind as the study file names it.</param>
-/// <param name="Width">Features a row (0 for zero-shot).</param>
-/// <param name="TrainRows">Rows the probe was fitted on (0 for zero-shot).</param>
-/// <param name="InverseRegularization">C, the inverse regularization strength chosen by cross-validation (null for zero-shot).</param>
-/// <param name="Score">Test accuracy with its bootstrap interval, log loss, macro-F1 and confusion.</param>
-public sealed record StudyCell(string Model, string Prompt, string Feature, int Width, int TrainRows, double? InverseRegularization, ClassificationReport Score);
-
-/// <summary>A model of a study with its cross-entropy on the study's test texts (no prompt).</summary>
-public sealed record StudyModel(string Name, string Folder, CrossEntropyResult CrossEntropy);
-
-/// <summary>Test log loss against the models' cross-entropy for one prompt and feature kind, with the fitted curve.</summary>
-public sealed record StudyCurve(string Prompt, string Feature, IReadOnlyList<(double CrossEntropy, double LogLoss)> Points, SquareRootFit Fit);
-
-/// <summary>Everything a study measured.</summary>
-/// <param name="Spec">The study.</param>
-/// <param name="Classes">The task's labels, ordinal order (the probes' class order).</param>
-/// <param name="Prior">The baseline without features: every test text given the training labels' frequencies (its accuracy is the majority class's share).</param>
-/// <param name="Models">Each model with its cross-entropy.</param>
-/// <param name="Cells">Every model × prompt × feature, in that order.</param>
-/// <param name="Curves">Test log loss against cross-entropy for each prompt and probed feature (none with fewer than 3 distinct cross-entropies).</param>
-public sealed record StudyResult(StudySpec Spec, IReadOnlyList<string> Classes, ClassificationReport Prior, IReadOnlyList<StudyModel> Models, IReadOnlyList<StudyCell> Cells, IReadOnlyList<StudyCurve> Curves);
-
 /// <summary>
 /// Runs a study grid into a folder: the subsampled task (data/), one extraction run per model, prompt and split
 /// (runs/MODEL/PROMPT/train|test, resumable), and each cell's result (cells/*.json). A rerun with the same study file

@@ -5,12 +5,6 @@ using System.Text.Json.Nodes;
 
 namespace Assay.Output;
 
-/// <summary>One feature file of a finished run: its file name, NumPy dtype, rows and width.</summary>
-public sealed record RunOutputFile(string File, string DType, long Rows, int Width);
-
-/// <summary>A run's counts: records read, rows written, records rejected, rows truncated, and tokens of all rows.</summary>
-public readonly record struct RunCounts(long Read, long Accepted, long Rejected, long TruncatedRows, long Tokens);
-
 /// <summary>
 /// A finished run's <c>record.json</c>, the one place that writes and reads it: the settings that decide the bytes
 /// (model files and hashes, input, prompt, features, options), the counts, each feature file's shape, and for a shard

@@ -1,0 +1,82 @@
+using System.Runtime.Intrinsics;
+using System.Runtime.Intrinsics.X86;
+
+namespace Assay.Kernels;
+
+/// <summary>
+/// Picks the kernel paths once at start-up: the widest hardware-accelerated vector width, in the order
+/// Vector512 → Vector256 → Vector128 → Scalar, and for int8 AVX-VNNI where the CPU has it and the float path is at
+/// least 256 bits wide, else scalar. The environment variable <c>ASSAY_KERNELS</c> forces them as
+/// <c>FLOAT[:INT8]</c> (<c>vector256</c>, <c>vector512:scalar</c>, <c>scalar</c>; the int8 part defaults as above
+/// for the forced width), so the whole test suite can run on each; forcing a path the CPU lacks is an error.
+/// </summary>
+public static class KernelSelector
+{
+    /// <summary>The name of the environment variable that forces a variant.</summary>
+    public const string EnvironmentVariable = "ASSAY_KERNELS";
+
+    private static readonly (KernelVariant Float, Int8Kernel Int8) Chosen = Select(Environment.GetEnvironmentVariable(EnvironmentVariable));
+
+    /// <summary>The float32 variant in use by this process.</summary>
+    public static KernelVariant Current => Chosen.Float;
+
+    /// <summary>The int8 path in use by this process.</summary>
+    public static Int8Kernel CurrentInt8 => Chosen.Int8;
+
+    /// <summary>True when the CPU runs <paramref name="variant"/> in hardware.</summary>
+    public static bool IsSupported(KernelVariant variant) => variant switch
+    {
+        KernelVariant.Vector512 => Vector512.IsHardwareAccelerated,
+        KernelVariant.Vector256 => Vector256.IsHardwareAccelerated,
+        KernelVariant.Vector128 => Vector128.IsHardwareAccelerated,
+        _ => true,
+    };
+
+    /// <summary>True when the CPU runs <paramref name="kernel"/> in hardware.</summary>
+    public static bool IsSupported(Int8Kernel kernel) => kernel switch
+    {
+        Int8Kernel.AvxVnni => AvxVnni.IsSupported,
+        _ => true,
+    };
+
+    /// <summary>The int8 path taken by default with a float path of width <paramref name="variant"/>.</summary>
+    public static Int8Kernel DefaultInt8(KernelVariant variant) =>
+        variant >= KernelVariant.Vector256 && IsSupported(Int8Kernel.AvxVnni) ? Int8Kernel.AvxVnni : Int8Kernel.Scalar;
+
+    internal static (KernelVariant Float, Int8Kernel Int8) Select(string? forced)
+    {
+        if (string.IsNullOrEmpty(forced))
+        {
+            KernelVariant widest = IsSupported(KernelVariant.Vector512) ? KernelVariant.Vector512
+                : IsSupported(KernelVariant.Vector256) ? KernelVariant.Vector256
+                : IsSupported(KernelVariant.Vector128) ? KernelVariant.Vector128
+                : KernelVariant.Scalar;
+            return (widest, DefaultInt8(widest));
+        }
+        int colon = forced.IndexOf(':', StringComparison.Ordinal);
+        string floatPart = colon < 0 ? forced : forced[..colon];
+        if (!Enum.TryParse(floatPart, ignoreCase: true, out KernelVariant v) || !Enum.IsDefined(v) || !char.IsLetter(floatPart[0]))
+        {
+            throw new InvalidOperationException(
+                $"{EnvironmentVariable}={forced} is not a kernel variant; use scalar, vector128, vector256 or vector512, optionally followed by :scalar or :avxvnni for int8");
+        }
+        if (!IsSupported(v))
+        {
+            throw new InvalidOperationException($"{EnvironmentVariable}={forced}: this CPU does not accelerate {v}");
+        }
+        if (colon < 0)
+        {
+            return (v, DefaultInt8(v));
+        }
+        string int8Part = forced[(colon + 1)..];
+        if (int8Part.Length == 0 || !char.IsLetter(int8Part[0]) || !Enum.TryParse(int8Part, ignoreCase: true, out Int8Kernel q) || !Enum.IsDefined(q))
+        {
+            throw new InvalidOperationException($"{EnvironmentVariable}={forced}: \"{int8Part}\" is not an int8 path; use scalar or avxvnni");
+        }
+        if (!IsSupported(q))
+        {
+            throw new InvalidOperationException($"{EnvironmentVariable}={forced}: this CPU does not have {q}");
+        }
+        return (v, q);
+    }
+}
