@@ -22,7 +22,15 @@ public sealed class KernelSelectorTests
     [InlineData("vector128", KernelVariant.Vector128, Int8Kernel.Scalar)]
     public void Honours_a_forced_variant(string value, KernelVariant expected, Int8Kernel integerPath)
     {
-        Assert.Equal((expected, integerPath), KernelSelector.Select(value));
+        if (KernelSelector.IsSupported(expected))
+        {
+            Assert.Equal((expected, integerPath), KernelSelector.Select(value));
+        }
+        else
+        {
+            // As under DOTNET_EnableHWIntrinsic=0: a path the CPU does not accelerate is refused, never run slowly.
+            Assert.Contains("does not accelerate", Assert.Throws<InvalidOperationException>(() => KernelSelector.Select(value)).Message, StringComparison.Ordinal);
+        }
     }
 
     [Fact]
