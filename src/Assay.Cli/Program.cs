@@ -1,5 +1,6 @@
 using System.CommandLine;
 using Assay.Cli.Commands;
+using Assay.Kernels;
 
 var root = new RootCommand("assay: run GPT-2-family language models from safetensors checkpoints on the CPU and extract what they compute.");
 root.Subcommands.Add(InspectCommand.Create());
@@ -11,4 +12,20 @@ root.Subcommands.Add(ProbeCommand.Create());
 root.Subcommands.Add(CrossEntropyCommand.Create());
 root.Subcommands.Add(ZeroShotCommand.Create());
 root.Subcommands.Add(StudyCommand.Create());
-return root.Parse(args).Invoke();
+
+ParseResult parsed = root.Parse(args);
+if (parsed.Errors.Count > 0)
+{
+    // One line: the first problem and where the usage is, not the whole help text.
+    // A word it does not know explains the rest ("no command given" follows from it): say that first.
+    string first = parsed.Errors.Select(e => e.Message).FirstOrDefault(m => m.StartsWith("Unrecognized", StringComparison.Ordinal)) ?? parsed.Errors[0].Message;
+    Console.Error.WriteLine($"assay: {Usage.Describe(first)}; see '{Usage.CommandPath(parsed.CommandResult.Command, root)} --help'");
+    return CommandRunner.BadInput;
+}
+if (KernelSelector.EnvironmentProblem is string problem)
+{
+    // Checked before any command runs, so no command starts on a setting it would refuse halfway.
+    Console.Error.WriteLine($"assay: {problem}");
+    return CommandRunner.BadInput;
+}
+return parsed.Invoke();

@@ -1,8 +1,13 @@
 namespace Assay.Cli.Commands;
 
-/// <summary>Runs a command body and turns the engine's input errors into one line on stderr and exit code 2.</summary>
+/// <summary>
+/// Runs a command body and turns the engine's input errors into one line on stderr and exit code 2. The exit codes:
+/// 0 done; 1 checked, and it differs (<c>assay manifest verify</c>); 2 bad input or usage; 74 a write failed (a full
+/// disk or a read-only folder: the run resumes); 130 interrupted.
+/// </summary>
 internal static class CommandRunner
 {
+    /// <summary>Bad input or usage.</summary>
     public const int BadInput = 2;
 
     public static int Run(Func<int> body)
@@ -18,8 +23,28 @@ internal static class CommandRunner
         }
         catch (Exception e) when (e is DirectoryNotFoundException or FileNotFoundException or ArgumentException)
         {
+            Console.Error.WriteLine($"assay: {Message(e)}");
+            return BadInput;
+        }
+        catch (InvalidOperationException e) when (e.Message.StartsWith(Assay.Kernels.KernelSelector.EnvironmentVariable, StringComparison.Ordinal))
+        {
             Console.Error.WriteLine($"assay: {e.Message}");
             return BadInput;
         }
+    }
+
+    /// <summary>The message without .NET's " (Parameter 'name')" suffix, which names code, not the user's input.</summary>
+    public static string Message(Exception e)
+    {
+        string message = e.Message;
+        if (e is ArgumentException { ParamName: string name })
+        {
+            string suffix = $" (Parameter '{name}')";
+            if (message.EndsWith(suffix, StringComparison.Ordinal))
+            {
+                message = message[..^suffix.Length];
+            }
+        }
+        return message;
     }
 }

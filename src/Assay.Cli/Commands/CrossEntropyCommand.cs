@@ -27,7 +27,15 @@ internal static class CrossEntropyCommand
 
     internal static int Run(string folder, string input, int? stride, InputFormat format, string textField, TextWriter o)
     {
+        if (stride is int s0)
+        {
+            ExtractCommand.Positive("--stride", s0);
+        }
         LanguageModel m = LanguageModel.Open(folder);
+        if (stride > m.Config.ContextLength)
+        {
+            throw new ArgumentException($"--stride {stride}: expected 1 … {m.Config.ContextLength} (the context length)");
+        }
         using TextInputReader reader = TextInputReader.Open(input, format, new InputFields { Text = textField });
         long rejected = 0;
         IEnumerable<string> Texts()
@@ -46,6 +54,11 @@ internal static class CrossEntropyCommand
         }
         CrossEntropyResult s = CrossEntropy.Score(m, Texts(), stride);
         CultureInfo inv = CultureInfo.InvariantCulture;
+        if (s.Tokens == 0)
+        {
+            // No predicted token means no cross-entropy (0 / 0), never a "NaN nats/token" result.
+            throw new ArgumentException(string.Create(inv, $"{input}: no text to score ({rejected:N0} records rejected, e.g. without a \"{textField}\" field)"));
+        }
         o.WriteLine(string.Create(inv, $"texts          {s.Texts:N0} scored ({rejected:N0} rejected records skipped)"));
         o.WriteLine(string.Create(inv, $"tokens         {s.Tokens:N0} predicted, {s.Bytes:N0} UTF-8 bytes"));
         o.WriteLine(string.Create(inv, $"cross-entropy  {s.NatsPerToken:F4} nats/token, {s.BitsPerByte:F4} bits/byte, perplexity {s.Perplexity:F2}"));

@@ -91,14 +91,16 @@ internal static class ExtractCommand
 
     internal static int Run(Request q, TextWriter o, TextWriter err, CancellationToken cancellationToken)
     {
-        PromptTemplate template;
-        try
+        PromptTemplate template = Prompt(q.Prompt);
+        Positive("--token-budget", q.TokenBudget);
+        Positive("--commit-rows", q.CommitRows);
+        if (q.Threads < 0)
         {
-            template = PromptTemplate.Parse(q.Prompt);
+            throw new ArgumentException(string.Create(CultureInfo.InvariantCulture, $"--threads {q.Threads}: expected 0 (all cores) or a positive count"));
         }
-        catch (FormatException e)
+        if (!(q.ProgressSeconds > 0 && double.IsFinite(q.ProgressSeconds)))
         {
-            throw new ArgumentException($"--prompt: {e.Message}", e);
+            throw new ArgumentException(string.Create(CultureInfo.InvariantCulture, $"--progress-seconds {q.ProgressSeconds}: expected a positive number of seconds"));
         }
         InputFormat format = Format(q.Format);
         TextTruncation truncation = Spellings.Parse<TextTruncation>("--keep", q.Keep);
@@ -198,6 +200,28 @@ internal static class ExtractCommand
         err.WriteLine(string.Create(CultureInfo.InvariantCulture,
             $"assay: shard {shard} from the Slurm job array (task {task}, first {first}, {tasks} tasks); pass --shard 1/1 to run unsharded"));
         return shard;
+    }
+
+    /// <summary>Refuses a count below 1, naming the option.</summary>
+    internal static void Positive(string option, int value)
+    {
+        if (value < 1)
+        {
+            throw new ArgumentException(string.Create(CultureInfo.InvariantCulture, $"{option} {value}: expected a positive number"));
+        }
+    }
+
+    /// <summary>The --prompt template, or a refusal naming the option.</summary>
+    internal static PromptTemplate Prompt(string text)
+    {
+        try
+        {
+            return PromptTemplate.Parse(text);
+        }
+        catch (FormatException e)
+        {
+            throw new ArgumentException($"--prompt: {e.Message}", e);
+        }
     }
 
     /// <summary>The --format names.</summary>

@@ -30,6 +30,10 @@ internal static class NextCommand
             throw new ArgumentException($"--top {top}: expected a positive number");
         }
         LanguageModel model = LanguageModel.Open(folder);
+        if (top > model.Config.VocabularySize)
+        {
+            throw new ArgumentException($"--top {top}: expected 1 … {model.Config.VocabularySize} (the vocabulary)");
+        }
         int[] ids = model.Tokenizer.Encode(text);
         if (ids.Length == 0)
         {

@@ -35,11 +35,12 @@ internal static class ZeroShotCommand
     internal static int Run(string folder, string input, string verbalizerPath, string prompt, bool fullWords, InputFormat format,
         string textField, string labelField, TextWriter o)
     {
+        PromptTemplate template = ExtractCommand.Prompt(prompt);
         Verbalizer v = Verbalizer.Load(verbalizerPath);
         LanguageModel m = LanguageModel.Open(folder);
         var extractor = new FeatureExtractor(m, new ExtractionOptions
         {
-            Prompt = PromptTemplate.Parse(prompt),
+            Prompt = template,
             Features = [new WordListFeature(v.AllWords, fullWords)],
         });
         int output = fullWords ? 1 : 0;
@@ -47,7 +48,8 @@ internal static class ZeroShotCommand
         using TextInputReader reader = TextInputReader.Open(input, format, new InputFields { Text = textField, Label = labelField, LabelRequired = true });
         var truth = new List<int>();
         var texts = new List<string>();
-        long skipped = 0;
+        long skipped = 0, unlabelled = 0, unknown = 0;
+        string? firstUnknown = null;
         foreach (InputRecord r in reader.Records())
         {
             if (r.Accepted && classes.TryGetIndex(r.Label, out int label))
@@ -58,7 +60,22 @@ internal static class ZeroShotCommand
             else
             {
                 skipped++;
+                if (r.Accepted && r.Label.Length > 0)
+                {
+                    unknown++;
+                    firstUnknown ??= r.Label;
+                }
+                else
+                {
+                    unlabelled++;
+                }
             }
+        }
+        if (truth.Count == 0)
+        {
+            // Nothing to score is a mistake (no labels, the wrong label field, another task's verbalizer), not a 0 % result.
+            throw new ArgumentException(string.Create(CultureInfo.InvariantCulture,
+                $"{input}: no record has a label the verbalizer knows ({skipped:N0} read: {unlabelled:N0} without a label (no \"{labelField}\" field, or plain lines); {unknown:N0} with other labels{(firstUnknown != null ? $", such as \"{firstUnknown}\"" : "")}); zero-shot scores labelled texts"));
         }
         int k = classes.Count;
         var scorer = new ZeroShotScorer(v, classes, fullWords);

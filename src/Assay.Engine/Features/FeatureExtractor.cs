@@ -64,7 +64,7 @@ public sealed class FeatureExtractor
         var binding = new FeatureBinding(model, options);
         foreach (FeatureRequest request in options.Features)
         {
-            IReadOnlyList<FeatureOutput> own = request.Outputs(model.Config);
+            IReadOnlyList<FeatureOutput> own = request.Outputs(ModelShape.Of(model.Config));
             FeatureStep step = request.Bind(binding, outputs.Count);
             outputs.AddRange(own);
             for (int c = 0; c < step.Continuations.Count; c++)

@@ -15,13 +15,34 @@ public static class KernelSelector
     /// <summary>The name of the environment variable that forces a variant.</summary>
     public const string EnvironmentVariable = "ASSAY_KERNELS";
 
-    private static readonly (KernelVariant Float, Int8Kernel Int8) Chosen = Select(Environment.GetEnvironmentVariable(EnvironmentVariable));
+    // Chosen on first use; a bad ASSAY_KERNELS value is an InvalidOperationException naming it, every time it is used
+    // (never a TypeInitializationException).
+    private static readonly Lazy<(KernelVariant Float, Int8Kernel Int8)> Chosen = new(() => Select(Environment.GetEnvironmentVariable(EnvironmentVariable)));
 
     /// <summary>The float32 variant in use by this process.</summary>
-    public static KernelVariant Current => Chosen.Float;
+    /// <exception cref="InvalidOperationException">ASSAY_KERNELS names no variant, or one the CPU lacks.</exception>
+    public static KernelVariant Current => Chosen.Value.Float;
 
     /// <summary>The int8 path in use by this process.</summary>
-    public static Int8Kernel CurrentInt8 => Chosen.Int8;
+    /// <exception cref="InvalidOperationException">ASSAY_KERNELS names no variant, or one the CPU lacks.</exception>
+    public static Int8Kernel CurrentInt8 => Chosen.Value.Int8;
+
+    /// <summary>What is wrong with the ASSAY_KERNELS setting of this process, or null when it is unset or valid.</summary>
+    public static string? EnvironmentProblem
+    {
+        get
+        {
+            try
+            {
+                _ = Chosen.Value;
+                return null;
+            }
+            catch (InvalidOperationException e)
+            {
+                return e.Message;
+            }
+        }
+    }
 
     /// <summary>True when the CPU runs <paramref name="variant"/> in hardware.</summary>
     public static bool IsSupported(KernelVariant variant) => variant switch

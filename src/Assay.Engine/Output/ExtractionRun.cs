@@ -78,6 +78,7 @@ public static class ExtractionRun
             RunShard? shard = options.Shard;
             bool more = true;
             long inputRows = 0;
+            var firstRejections = new List<InputRecord>(3);
             for (long skip = 0; skip < state.Read && more; skip++)
             {
                 // Records before the last commit were counted then; reading them again only finds where to go on
@@ -114,9 +115,16 @@ public static class ExtractionRun
                     {
                         throw new TextInputException(reader.Path, r.Line, $"{r.Rejection} (stopped by --strict; without it the record goes to {RunFolder.RejectsFile} and the run goes on)");
                     }
-                    else if (shard == null || shard.Index == 1)
+                    else
                     {
-                        rejected.Add(r);
+                        if (firstRejections.Count < 3)
+                        {
+                            firstRejections.Add(r);
+                        }
+                        if (shard == null || shard.Index == 1)
+                        {
+                            rejected.Add(r);
+                        }
                     }
                 }
                 if (read == 0)
@@ -144,6 +152,12 @@ public static class ExtractionRun
 
             UpdateSession(session, clock.Elapsed, state.Accepted - resumedAt, sessionTokens);
             files.Dispose();
+            if (inputRows == 0)
+            {
+                // An empty run is a mistake (a misspelled field, the wrong file), never a finished result: the folder
+                // stays unfinished, with the rejects to look at.
+                throw NothingAccepted(reader.Path, state, firstRejections, outputFolder);
+            }
             Finish(outputFolder, state, outputs, shard, inputRows);
             return state.Summary(alreadyComplete: false, clock.Elapsed) with { ResumedAt = resumedAt };
         }
@@ -218,6 +232,17 @@ public static class ExtractionRun
             settings["shard"] = new JsonObject { ["index"] = shard.Index, ["count"] = shard.Count };
         }
         return settings;
+    }
+
+    private static TextInputException NothingAccepted(string input, CommitPoint state, List<InputRecord> first, string folder)
+    {
+        if (state.Read == 0)
+        {
+            return new TextInputException(input, 0, "holds no records; nothing to extract");
+        }
+        string reasons = string.Join("; ", first.Select(r => string.Create(CultureInfo.InvariantCulture, $"line {r.Line}: {r.Rejection}")));
+        return new TextInputException(input, 0, string.Create(CultureInfo.InvariantCulture,
+            $"no record was accepted ({state.Read:N0} read, all rejected{(reasons.Length > 0 ? $"; first: {reasons}" : "")}); the rejects are in {Path.Combine(folder, RunFolder.RejectsFile)}. Fix the input or the field options and rerun with --overwrite"));
     }
 
     private static void Finish(string folder, CommitPoint state, OutputFile[] outputs, RunShard? shard, long inputRows)

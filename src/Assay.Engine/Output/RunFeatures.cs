@@ -5,7 +5,44 @@ namespace Assay.Output;
 /// <summary>One feature of a finished run folder, as float64 rows, with the rows' ids and labels from rows.csv.</summary>
 public sealed record RunFeatures(double[] Values, int Rows, int Width, IReadOnlyList<string> Ids, IReadOnlyList<string> Labels)
 {
-    /// <summary>Reads <c>{feature}.npy</c> (float32, float16 or int32, as extract writes them) and rows.csv of a run folder.</summary>
+    /// <summary>
+    /// The file stem of a feature of a finished run, named by its stem (<c>hidden.layer4.last</c>) or as a feature
+    /// list names it (<c>hidden:4</c>, <c>hidden</c>, <c>hidden:mean</c>, <c>cmean</c>, <c>topk:5</c> → its
+    /// probabilities, <c>words-loglik</c> → its log-likelihoods).
+    /// </summary>
+    /// <exception cref="RunFolderException">No finished run, or it holds no such feature (the message lists what it holds).</exception>
+    public static string Resolve(string runFolder, string feature)
+    {
+        ArgumentNullException.ThrowIfNull(feature);
+        RunRecord record = RunRecord.Read(runFolder);
+        HashSet<string> stems = [.. record.Files.Select(f => Path.GetFileNameWithoutExtension(f.File))];
+        if (stems.Contains(feature))
+        {
+            return feature;
+        }
+        string? stem = null;
+        try
+        {
+            IReadOnlyList<Features.FeatureRequest> requests = Features.FeatureSpec.Parse(feature, record.Shape.Layers, _ => []);
+            if (requests.Count == 1)
+            {
+                Features.FeatureRequest r = requests[0];
+                stem = r.Outputs(record.Shape)[r.PrimaryOutput].Name;
+            }
+        }
+        catch (ArgumentException)
+        {
+            // Not a feature spelling either: refused below with what the run holds.
+        }
+        if (stem != null && stems.Contains(stem))
+        {
+            return stem;
+        }
+        string known = string.Join(", ", stems.Order(StringComparer.Ordinal));
+        throw new RunFolderException(runFolder, $"has no feature \"{feature}\"{(stem != null ? $" ({stem}.npy)" : "")}; it has {known}");
+    }
+
+    /// <summary>Reads one feature (named as <see cref="Resolve"/> takes it; float32, float16 or int32, as extract writes them) and rows.csv of a run folder.</summary>
     /// <exception cref="RunFolderException">The run is unfinished, the feature is missing, or the files disagree.</exception>
     public static RunFeatures Load(string runFolder, string feature)
     {
@@ -15,12 +52,8 @@ public sealed record RunFeatures(double[] Values, int Rows, int Width, IReadOnly
         {
             throw new RunFolderException(runFolder, $"holds no finished run ({RunFolder.RecordFile} is missing); finish it with assay extract --resume");
         }
-        string path = Path.Combine(runFolder, feature + ".npy");
-        if (!File.Exists(path))
-        {
-            string known = string.Join(", ", Directory.GetFiles(runFolder, "*.npy").Select(Path.GetFileNameWithoutExtension).Order(StringComparer.Ordinal));
-            throw new RunFolderException(runFolder, $"has no feature \"{feature}\"; it has {known}");
-        }
+        string stem = Resolve(runFolder, feature);
+        string path = Path.Combine(runFolder, stem + ".npy");
         byte[] bytes = File.ReadAllBytes(path);
         (string descr, long rowCount, int width, int offset) = NpyFormat.ReadHeader(bytes)
             ?? throw new RunFolderException(runFolder, $"{path}: not a 2-D .npy file of float32, float16 or int32");

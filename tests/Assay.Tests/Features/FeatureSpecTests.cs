@@ -15,6 +15,8 @@ public sealed class FeatureSpecTests
     [InlineData("hidden:2", "hidden:2:last")]
     [InlineData("hidden:-2:mean", "hidden:-2:mean")]
     [InlineData("hidden:0:mark", "hidden:0:mark")]
+    [InlineData("hidden:mean", "hidden:-1:mean")]
+    [InlineData("hidden:last", "hidden:-1:last")]
     [InlineData("nextword", "nextword")]
     [InlineData("topk:7", "topk:7")]
     [InlineData("words", "words")]

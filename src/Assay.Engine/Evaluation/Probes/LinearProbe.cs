@@ -13,6 +13,27 @@ public sealed record ProbeOptions
 
     /// <summary>Seed of the fold assignment.</summary>
     public ulong Seed { get; init; } = 1;
+
+    /// <summary>Checks the options before any data is read.</summary>
+    /// <exception cref="ArgumentException">Fewer than 2 folds, no C, or a C that is not a positive finite number.</exception>
+    public void Validate()
+    {
+        if (Folds < 2)
+        {
+            throw new ArgumentException($"folds {Folds}: cross-validation needs at least 2 folds");
+        }
+        if (InverseRegularizations.Count == 0)
+        {
+            throw new ArgumentException("no values of C to try; give at least one");
+        }
+        foreach (double c in InverseRegularizations)
+        {
+            if (!(c > 0 && double.IsFinite(c)))
+            {
+                throw new ArgumentException($"C {c.ToString(System.Globalization.CultureInfo.InvariantCulture)}: expected a positive finite number");
+            }
+        }
+    }
 }
 
 /// <summary>
@@ -54,6 +75,7 @@ public sealed class LinearProbe
     public static LinearProbe Fit(double[] x, int n, int d, IReadOnlyList<string> labels, ProbeOptions? options = null)
     {
         options ??= new ProbeOptions();
+        options.Validate();
         if (labels.Count != n || x.Length != (long)n * d)
         {
             throw new ArgumentException($"expected {n} × {d} features and {n} labels; got {x.Length} values and {labels.Count} labels");

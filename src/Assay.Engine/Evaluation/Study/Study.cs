@@ -143,7 +143,8 @@ public static class Study
             {
                 requests.Add(request);
             }
-            stems[feature] = (same ?? request).Outputs(model.Config)[0].Name;
+            FeatureRequest kept = same ?? request;
+            stems[feature] = kept.Outputs(ModelShape.Of(model.Config))[kept.PrimaryOutput].Name;
         }
         return ([.. requests], stems);
     }

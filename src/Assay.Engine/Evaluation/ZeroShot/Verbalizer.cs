@@ -8,7 +8,7 @@ public sealed class VerbalizerException : InvalidInputException
 {
     /// <summary>Creates the exception.</summary>
     public VerbalizerException(string filePath, int line, string problem)
-        : base(filePath, string.Create(CultureInfo.InvariantCulture, $"{filePath}, line {line}: {problem}"))
+        : base(filePath, line > 0 ? string.Create(CultureInfo.InvariantCulture, $"{filePath}, line {line}: {problem}") : $"{filePath}: {problem}")
     {
     }
 }
@@ -38,6 +38,11 @@ public sealed class Verbalizer
     /// <exception cref="VerbalizerException">Invalid UTF-8, a line without "label:", a label twice, a label without words, or fewer than two labels.</exception>
     public static Verbalizer Load(string path)
     {
+        ArgumentNullException.ThrowIfNull(path);
+        if (!File.Exists(path))
+        {
+            throw new VerbalizerException(path, 0, "no such verbalizer file");
+        }
         string text;
         try
         {

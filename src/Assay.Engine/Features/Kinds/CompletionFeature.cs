@@ -1,5 +1,4 @@
 using System.Text.Json.Nodes;
-using Assay.Config;
 
 namespace Assay.Features;
 
@@ -19,7 +18,7 @@ public sealed record CompletionFeature(IReadOnlyList<string> Candidates) : Featu
 
     internal static IEnumerable<FeatureRequest> Parse(FeatureSpec.Item item) => item.Bare(() => new CompletionFeature(item.List(ListName)));
 
-    internal override IReadOnlyList<FeatureOutput> Outputs(ModelConfig config) =>
+    internal override IReadOnlyList<FeatureOutput> Outputs(ModelShape shape) =>
         [new FeatureOutput("completions.loglik", Candidates.Count, FeatureElement.Real, this)];
 
     internal override FeatureStep Bind(FeatureBinding binding, int firstOutput) =>

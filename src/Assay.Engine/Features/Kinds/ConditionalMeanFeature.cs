@@ -1,4 +1,3 @@
-using Assay.Config;
 using Assay.Model;
 
 namespace Assay.Features;
@@ -17,7 +16,7 @@ public sealed record ConditionalMeanFeature : FeatureRequest
 
     internal static IEnumerable<FeatureRequest> Parse(FeatureSpec.Item item) => item.Bare(() => new ConditionalMeanFeature());
 
-    internal override IReadOnlyList<FeatureOutput> Outputs(ModelConfig config) => [new FeatureOutput("cmean", config.Width, FeatureElement.Real, this)];
+    internal override IReadOnlyList<FeatureOutput> Outputs(ModelShape shape) => [new FeatureOutput("cmean", shape.Width, FeatureElement.Real, this)];
 
     internal override FeatureStep Bind(FeatureBinding binding, int firstOutput) => new Step(firstOutput);
 

@@ -1,5 +1,4 @@
 using System.Text.Json.Nodes;
-using Assay.Config;
 
 namespace Assay.Features;
 
@@ -17,9 +16,12 @@ public abstract record FeatureRequest
     /// <summary>The canonical spelling of the request, as <c>assay extract --features</c> takes it.</summary>
     public abstract string Spec { get; }
 
-    /// <summary>The arrays the kind writes for a model of shape <paramref name="config"/>, in order.</summary>
+    /// <summary>The arrays the kind writes for a model of shape <paramref name="shape"/>, in order.</summary>
     /// <exception cref="ArgumentException">The request does not fit the model (a layer out of range, k over the vocabulary).</exception>
-    internal abstract IReadOnlyList<FeatureOutput> Outputs(ModelConfig config);
+    internal abstract IReadOnlyList<FeatureOutput> Outputs(ModelShape shape);
+
+    /// <summary>Which of <see cref="Outputs"/> stands for the kind where one array is asked for (a probe's feature): the first, unless the kind says otherwise.</summary>
+    internal virtual int PrimaryOutput => 0;
 
     /// <summary>The kind's compute step for one extraction, writing the outputs from <paramref name="firstOutput"/> on.</summary>
     /// <exception cref="ArgumentException">The request does not fit the prompt or its words have no tokens.</exception>

@@ -1,6 +1,5 @@
 using System.Globalization;
 using System.Numerics.Tensors;
-using Assay.Config;
 using Assay.Model;
 
 namespace Assay.Features;
@@ -57,13 +56,13 @@ public sealed record HiddenStateFeature(int Layer, HiddenPooling Pooling = Hidde
         {
             throw item.Error("has too many parts; write hidden:LAYER:POOLING");
         }
-        HiddenPooling pooling = parts.Length < 3 ? HiddenPooling.LastToken : parts[2] switch
+        HiddenPooling pooling = parts.Length < 3 ? HiddenPooling.LastToken
+            : PoolingNamed(parts[2]) ?? throw item.Error($"pooling \"{parts[2]}\" is not last, mean or mark");
+        if (parts.Length == 2 && PoolingNamed(parts[1]) is HiddenPooling only)
         {
-            "last" => HiddenPooling.LastToken,
-            "mean" => HiddenPooling.Mean,
-            "mark" => HiddenPooling.Marked,
-            _ => throw item.Error($"pooling \"{parts[2]}\" is not last, mean or mark"),
-        };
+            // hidden:mean, hidden:last, hidden:mark: the default layer (L) with that pooling.
+            return [new HiddenStateFeature(-1, only)];
+        }
         if (parts.Length >= 2 && parts[1] == "all")
         {
             return Enumerable.Range(0, item.Layers + 1).Select(l => new HiddenStateFeature(l, pooling));
@@ -72,10 +71,18 @@ public sealed record HiddenStateFeature(int Layer, HiddenPooling Pooling = Hidde
         return [new HiddenStateFeature(layer, pooling)];
     }
 
-    internal override IReadOnlyList<FeatureOutput> Outputs(ModelConfig config)
+    private static HiddenPooling? PoolingNamed(string name) => name switch
     {
-        int layer = ResolveLayer(Layer, config.Layers);
-        return [new FeatureOutput(string.Create(CultureInfo.InvariantCulture, $"hidden.layer{layer}.{PoolingName(Pooling)}"), config.Width, FeatureElement.Real, this)];
+        "last" => HiddenPooling.LastToken,
+        "mean" => HiddenPooling.Mean,
+        "mark" => HiddenPooling.Marked,
+        _ => null,
+    };
+
+    internal override IReadOnlyList<FeatureOutput> Outputs(ModelShape shape)
+    {
+        int layer = ResolveLayer(Layer, shape.Layers);
+        return [new FeatureOutput(string.Create(CultureInfo.InvariantCulture, $"hidden.layer{layer}.{PoolingName(Pooling)}"), shape.Width, FeatureElement.Real, this)];
     }
 
     internal override FeatureStep Bind(FeatureBinding binding, int firstOutput)

@@ -1,5 +1,3 @@
-using Assay.Config;
-
 namespace Assay.Features;
 
 /// <summary>The next-word distribution p after the filled template, over the whole vocabulary (V values a row). Spelled <c>nextword</c>.</summary>
@@ -12,8 +10,8 @@ public sealed record NextWordFeature : FeatureRequest
 
     internal static IEnumerable<FeatureRequest> Parse(FeatureSpec.Item item) => item.Bare(() => new NextWordFeature());
 
-    internal override IReadOnlyList<FeatureOutput> Outputs(ModelConfig config) =>
-        [new FeatureOutput("nextword", config.VocabularySize, FeatureElement.Real, this)];
+    internal override IReadOnlyList<FeatureOutput> Outputs(ModelShape shape) =>
+        [new FeatureOutput("nextword", shape.VocabularySize, FeatureElement.Real, this)];
 
     internal override FeatureStep Bind(FeatureBinding binding, int firstOutput) => new Step(firstOutput);
 

@@ -1,5 +1,4 @@
 using System.Globalization;
-using Assay.Config;
 
 namespace Assay.Features;
 
@@ -26,15 +25,18 @@ public sealed record TopTokensFeature(int Count) : FeatureRequest
         return k >= 1 ? [new TopTokensFeature(k)] : throw item.Error($"expected a positive number, found {item.Parts[1]}");
     }
 
-    internal override IReadOnlyList<FeatureOutput> Outputs(ModelConfig config)
+    internal override IReadOnlyList<FeatureOutput> Outputs(ModelShape shape)
     {
-        if (Count < 1 || Count > config.VocabularySize)
+        if (Count < 1 || Count > shape.VocabularySize)
         {
-            throw new ArgumentException(string.Create(CultureInfo.InvariantCulture, $"topk:{Count}: expected 1 … {config.VocabularySize} (the vocabulary)"));
+            throw new ArgumentException(string.Create(CultureInfo.InvariantCulture, $"topk:{Count}: expected 1 … {shape.VocabularySize} (the vocabulary)"));
         }
         string name = string.Create(CultureInfo.InvariantCulture, $"topk{Count}");
         return [new FeatureOutput(name + ".ids", Count, FeatureElement.TokenId, this), new FeatureOutput(name + ".probs", Count, FeatureElement.Real, this)];
     }
+
+    /// <summary>The probabilities (the ids are labels, not features).</summary>
+    internal override int PrimaryOutput => 1;
 
     internal override FeatureStep Bind(FeatureBinding binding, int firstOutput) => new Step(firstOutput, Count);
 

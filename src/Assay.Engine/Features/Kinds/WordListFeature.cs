@@ -1,5 +1,4 @@
 using System.Text.Json.Nodes;
-using Assay.Config;
 
 namespace Assay.Features;
 
@@ -24,9 +23,12 @@ public sealed record WordListFeature(IReadOnlyList<string> Words, bool FullLogLi
     internal static IEnumerable<FeatureRequest> Parse(FeatureSpec.Item item) =>
         item.Bare(() => new WordListFeature(item.List(ListName), FullLogLikelihood: item.Parts[0] == LogLikelihoodName));
 
-    internal override IReadOnlyList<FeatureOutput> Outputs(ModelConfig config) => FullLogLikelihood
+    internal override IReadOnlyList<FeatureOutput> Outputs(ModelShape shape) => FullLogLikelihood
         ? [new FeatureOutput("words.first", Words.Count, FeatureElement.Real, this), new FeatureOutput("words.loglik", Words.Count, FeatureElement.Real, this)]
         : [new FeatureOutput("words.first", Words.Count, FeatureElement.Real, this)];
+
+    /// <summary>words-loglik stands for its log-likelihoods; words for its first-token probabilities.</summary>
+    internal override int PrimaryOutput => FullLogLikelihood ? 1 : 0;
 
     internal override FeatureStep Bind(FeatureBinding binding, int firstOutput)
     {

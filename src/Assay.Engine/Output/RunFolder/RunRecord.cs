@@ -116,6 +116,35 @@ public sealed class RunRecord
         return record;
     }
 
+    /// <summary>
+    /// The settings that decide a row's values — model files, prompt, features, storage, engine and kernels — without
+    /// those that say which texts were read (the input) and which share of them (the shard), or how rejects were
+    /// handled: what two runs must share for one's features to be compared with, or scored by a probe fitted on, the
+    /// other's.
+    /// </summary>
+    public JsonObject ValueSettings()
+    {
+        var settings = (JsonObject)Settings.DeepClone();
+        settings.Remove("input");
+        settings.Remove("shard");
+        settings.Remove("strict");
+        return settings;
+    }
+
+    /// <summary>The first value setting in which this run and <paramref name="other"/> differ ("path: this vs other"), or null.</summary>
+    public string? FirstValueDifference(RunRecord other)
+    {
+        ArgumentNullException.ThrowIfNull(other);
+        return JsonDifference.First(ValueSettings(), other.ValueSettings());
+    }
+
+    /// <summary>The first difference between value settings kept earlier (<see cref="ValueSettings"/>) and this run's, or null.</summary>
+    public string? FirstValueDifference(JsonObject valueSettings) => JsonDifference.First(valueSettings, ValueSettings());
+
+    /// <summary>The model's shape as the record names it.</summary>
+    internal Features.ModelShape Shape => new(
+        Settings["model"]!["layers"]!.GetValue<int>(), Settings["model"]!["width"]!.GetValue<int>(), Settings["model"]!["vocabulary"]!.GetValue<int>());
+
     /// <summary>The first top-level setting whose value differs, or null when they agree.</summary>
     internal static string? FirstDifference(JsonObject stored, JsonObject current)
     {

@@ -1,0 +1,40 @@
+namespace Assay.Evaluation;
+
+/// <summary>
+/// The folder a probe or zero-shot scoring writes (probe.json, report.json, predictions.csv), under the rule of run
+/// folders: a new or empty folder is used; one that holds an earlier report is replaced only when asked; one that
+/// holds anything else is never written to.
+/// </summary>
+public static class ReportFolder
+{
+    /// <summary>A saved probe.</summary>
+    public const string ProbeFile = "probe.json";
+
+    /// <summary>The scores.</summary>
+    public const string ReportFile = "report.json";
+
+    /// <summary>One row per scored text: id, label, predicted label, probabilities.</summary>
+    public const string PredictionsFile = "predictions.csv";
+
+    /// <summary>Takes <paramref name="folder"/> for a new report.</summary>
+    /// <exception cref="Output.RunFolderException">Foreign files, or an earlier report without <paramref name="overwrite"/>.</exception>
+    public static void Claim(string folder, bool overwrite)
+    {
+        ArgumentNullException.ThrowIfNull(folder);
+        Directory.CreateDirectory(folder);
+        string[] names = [.. Directory.EnumerateFileSystemEntries(folder).Select(e => Path.GetFileName(e)!)];
+        string[] foreign = [.. names.Where(n => n is not (ProbeFile or ReportFile or PredictionsFile) && !n.EndsWith(Output.AtomicFile.TemporarySuffix, StringComparison.Ordinal))];
+        if (foreign.Length > 0)
+        {
+            throw new Output.RunFolderException(folder, $"holds files that are not part of a report ({string.Join(", ", foreign.Take(3))}); give an empty or new folder");
+        }
+        if (names.Length > 0 && !overwrite)
+        {
+            throw new Output.RunFolderException(folder, "holds an earlier report, which is never overwritten unless asked; pass --overwrite to replace it");
+        }
+        foreach (string name in names)
+        {
+            File.Delete(Path.Combine(folder, name));
+        }
+    }
+}
