@@ -14,24 +14,28 @@ internal static class CrossEntropyCommand
         var input = new Argument<FileInfo>("input") { Description = "Texts: plain lines, JSONL, CSV or TSV (as for extract)." };
         var model = ModelOption.Create();
         var stride = new Option<int?>("--stride") { Description = "Window stride for texts longer than the context (default: the context length)." };
-        var format = new Option<string>("--format") { Description = "auto, lines, jsonl, csv or tsv.", DefaultValueFactory = _ => "auto" };
-        var textField = new Option<string>("--text-field") { Description = "JSONL field or CSV column of the text.", DefaultValueFactory = _ => "text" };
+        var shared = new SharedOptions();
+        var json = new Option<bool>("--json") { Description = "Write one JSON object instead of the text." };
         var command = new Command("cross-entropy", "The model's next-token cross-entropy on a corpus: nats per token, bits per byte and perplexity.")
         {
-            input, model, stride, format, textField,
+            input, model, stride, json,
         };
+        shared.AddInput(command, fields: false);
+        shared.AddModel(command, prompted: false);
         command.SetAction(r => CommandRunner.Run(() => Run(r.GetValue(model)!.FullName, r.GetValue(input)!.FullName, r.GetValue(stride),
-            ExtractCommand.Format(r.GetValue(format)!), r.GetValue(textField)!, Console.Out)));
+            ExtractCommand.Format(r.GetValue(shared.Format)!), r.GetValue(shared.TextField)!, Console.Out, r.GetValue(json), shared.Model(r))));
         return command;
     }
 
-    internal static int Run(string folder, string input, int? stride, InputFormat format, string textField, TextWriter o)
+    internal static int Run(string folder, string input, int? stride, InputFormat format, string textField, TextWriter o, bool json = false, ModelRun? run = null)
     {
         if (stride is int s0)
         {
             ExtractCommand.Positive("--stride", s0);
         }
-        LanguageModel m = LanguageModel.Open(folder);
+        run ??= new ModelRun();
+        int threads = run.CheckedThreads;
+        LanguageModel m = LanguageModel.Open(folder, ModelOption.ParseWeights(run.Weights));
         if (stride > m.Config.ContextLength)
         {
             throw new ArgumentException($"--stride {stride}: expected 1 … {m.Config.ContextLength} (the context length)");
@@ -52,12 +56,22 @@ internal static class CrossEntropyCommand
                 }
             }
         }
-        CrossEntropyResult s = CrossEntropy.Score(m, Texts(), stride);
+        CrossEntropyResult s = CrossEntropy.Score(m, Texts(), stride, threads);
         CultureInfo inv = CultureInfo.InvariantCulture;
         if (s.Tokens == 0)
         {
             // No predicted token means no cross-entropy (0 / 0), never a "NaN nats/token" result.
             throw new ArgumentException(string.Create(inv, $"{input}: no text to score ({rejected:N0} records rejected, e.g. without a \"{textField}\" field)"));
+        }
+        if (json)
+        {
+            o.WriteLine(new System.Text.Json.Nodes.JsonObject
+            {
+                ["texts"] = s.Texts, ["rejected"] = rejected, ["tokens"] = s.Tokens, ["bytes"] = s.Bytes, ["nats"] = s.Nats,
+                ["nats_per_token"] = s.NatsPerToken, ["bits_per_byte"] = s.BitsPerByte, ["perplexity"] = s.Perplexity,
+                ["stride"] = stride ?? m.Config.ContextLength,
+            }.ToJsonString(JsonOutput.Options));
+            return 0;
         }
         o.WriteLine(string.Create(inv, $"texts          {s.Texts:N0} scored ({rejected:N0} rejected records skipped)"));
         o.WriteLine(string.Create(inv, $"tokens         {s.Tokens:N0} predicted, {s.Bytes:N0} UTF-8 bytes"));

@@ -25,17 +25,9 @@ internal static class ExtractCommand
         var features = new Option<string>("--features") { Description = "Comma-separated: " + FeatureSpec.Syntax + ".", DefaultValueFactory = _ => FeatureSpec.Default };
         var words = new Option<FileInfo>("--words") { Description = "Word list for words / words-loglik: one word per line." };
         var completions = new Option<FileInfo>("--completions") { Description = "Candidate completions for completions: one per line." };
-        var format = new Option<string>("--format") { Description = "auto, lines, jsonl, csv or tsv.", DefaultValueFactory = _ => "auto" };
-        var textField = new Option<string>("--text-field") { Description = "JSONL field or CSV column of the text.", DefaultValueFactory = _ => "text" };
-        var idField = new Option<string>("--id-field") { Description = "Field of the row id; when given, records without it are rejected (default: id if present, else the line number)." };
-        var labelField = new Option<string>("--label-field") { Description = "Field of the label; when given, records without it are rejected (default: label if present)." };
-        var keep = new Option<string>("--keep") { Description = "Which end of an over-long text to keep: head or tail. The prompt is never cut.", DefaultValueFactory = _ => "head" };
-        var noSpace = new Option<bool>("--no-leading-space") { Description = "Score words and completions exactly as written, without a space before them." };
         var precision = new Option<string>("--precision") { Description = "float32 or float16 for the floating features.", DefaultValueFactory = _ => "float32" };
-        var weights = ModelOption.CreateWeights();
-        var budget = new Option<int>("--token-budget") { Description = "Tokens per forward pass.", DefaultValueFactory = _ => new ExtractionOptions().TokenBudget };
+        var shared = new SharedOptions();
         var commit = new Option<int>("--commit-rows") { Description = "Rows per commit (the most a crash can lose).", DefaultValueFactory = _ => new RunOptions().CommitRows };
-        var threads = new Option<int>("--threads") { Description = "Worker threads; 0 = all cores. Outputs do not depend on it.", DefaultValueFactory = _ => 0 };
         var resume = new Option<bool>("--resume") { Description = "Continue the unfinished run in the folder." };
         var overwrite = new Option<bool>("--overwrite") { Description = "Replace a run already in the folder." };
         var strict = new Option<bool>("--strict") { Description = "Stop at the first bad record instead of writing it to rejects.csv." };
@@ -44,26 +36,19 @@ internal static class ExtractCommand
 
         var command = new Command("extract", "Run the model over every text of an input file and write the requested features to a run folder.")
         {
-            input, output, folder, prompt, features, words, completions, format, textField, idField, labelField, keep, noSpace,
-            precision, weights, budget, commit, threads, resume, overwrite, strict, shard, progressSeconds,
+            input, output, folder, prompt, features, words, completions, precision, commit, resume, overwrite, strict, shard, progressSeconds,
         };
+        shared.AddInput(command, fields: true);
+        shared.AddModel(command, prompted: true);
         command.SetAction(r => CommandRunner.Run(() =>
         {
-            string? id = r.GetValue(idField), label = r.GetValue(labelField);
+            ModelRun run = shared.Model(r);
             var request = new Request(
                 r.GetValue(folder)!.FullName, r.GetValue(input)!.FullName, r.GetValue(output)!.FullName,
                 r.GetValue(prompt)!, r.GetValue(features)!, r.GetValue(words)?.FullName, r.GetValue(completions)?.FullName,
-                r.GetValue(format)!,
-                new InputFields
-                {
-                    Text = r.GetValue(textField)!,
-                    Id = id ?? "id",
-                    IdRequired = id != null,
-                    Label = label ?? "label",
-                    LabelRequired = label != null,
-                },
-                r.GetValue(keep)!, !r.GetValue(noSpace), r.GetValue(precision)!, r.GetValue(weights)!, r.GetValue(budget), r.GetValue(commit),
-                r.GetValue(threads), r.GetValue(resume), r.GetValue(overwrite), r.GetValue(strict), r.GetValue(progressSeconds),
+                r.GetValue(shared.Format)!, shared.Fields(r),
+                run.Keep, run.LeadingSpace, r.GetValue(precision)!, run.Weights, run.TokenBudget, r.GetValue(commit),
+                run.Threads, r.GetValue(resume), r.GetValue(overwrite), r.GetValue(strict), r.GetValue(progressSeconds),
                 r.GetValue(shard));
             using var cancel = new CancellationTokenSource();
             ConsoleCancelEventHandler onCancel = (_, e) =>

@@ -13,10 +13,16 @@ internal static class InspectCommand
     public static Command Create()
     {
         var folder = ModelOption.Create();
-        var command = new Command("inspect", "Describe a checkpoint folder and check it against its config.") { folder };
-        command.SetAction(r => CommandRunner.Run(() => Run(r.GetValue(folder)!.FullName, Console.Out)));
+        var json = new Option<bool>("--json") { Description = "Write one JSON object instead of the text." };
+        var command = new Command("inspect", "Describe a checkpoint folder and check it against its config.") { folder, json };
+        command.SetAction(r => CommandRunner.Run(() => r.GetValue(json) ? RunJson(r.GetValue(folder)!.FullName, Console.Out) : Run(r.GetValue(folder)!.FullName, Console.Out)));
         return command;
     }
+
+    /// <summary>The feature lists whose files inspect lists, one per kind and pooling.</summary>
+    private static readonly string[] Examples = ["hidden:0", "hidden", "hidden:mean", "hidden:mark", "nextword", "topk:10", "words", "words-loglik", "cmean", "completions"];
+
+    private static readonly WeightPrecision[] Storages = [WeightPrecision.Binary32, WeightPrecision.BFloat16, WeightPrecision.Integer8];
 
     internal static int Run(string folder, TextWriter o)
     {
@@ -30,6 +36,9 @@ internal static class InspectCommand
         o.WriteLine(string.Create(inv, $"architecture  GPT-2 family: {c.Layers} layers, width {c.Width}, {c.Heads} heads of {c.HeadWidth}, MLP {c.InnerWidth}, context {c.ContextLength}, vocabulary {c.VocabularySize}"));
         o.WriteLine(string.Create(inv, $"              activation {Describe(c.Activation)}, norm epsilon {c.NormEpsilon:G6}, output head {(c.TiedHead ? "tied to the token embedding" : "separate (lm_head.weight)")}"));
         o.WriteLine(string.Create(inv, $"parameters    {c.ParameterCount:N0} (tied head counted once)"));
+        o.WriteLine(string.Create(inv, $"layers        0 … {c.Layers} for hidden:LAYER (0 = embeddings, k = after block k, {c.Layers} = after the final norm; −1 … −{c.Layers + 1} count from the end)"));
+        o.WriteLine("weights       " + string.Join(", ", Storages.Select(p => string.Create(inv, $"{Assay.Spellings.Of(p)} {LanguageModel.WeightBytesFor(c, p) / 1048576.0:N1} MiB"))) + " in memory (--weights)");
+        o.WriteLine("outputs       " + string.Join("; ", Examples.Select(e => $"{e} → {string.Join(" + ", Assay.Features.FeatureSpec.OutputFiles(e, c))}")));
 
         TextTokenizer tokenizer = TextTokenizer.OpenFolder(folder);
         o.WriteLine(string.Create(inv, $"tokenizer     {tokenizer.Source}; {tokenizer.VocabularySize:N0} ids; end of text = {tokenizer.EndOfTextId}"));
@@ -74,6 +83,70 @@ internal static class InspectCommand
         }
         o.WriteLine("check         OK: every parameter the config implies is present with its shape");
         return 0;
+    }
+
+    /// <summary>Everything <see cref="Run"/> prints, as one JSON object (exit code 2 when the check fails, as there).</summary>
+    internal static int RunJson(string folder, TextWriter o)
+    {
+        if (!Directory.Exists(folder))
+        {
+            throw new DirectoryNotFoundException($"{folder}: no such model folder");
+        }
+        string configPath = Path.Combine(folder, ModelConfig.FileName);
+        ModelConfig c = ModelConfig.Load(configPath);
+        TextTokenizer tokenizer = TextTokenizer.OpenFolder(folder);
+        using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
+        string? problem = null;
+        CheckpointSummary? summary = null;
+        try
+        {
+            summary = LanguageModel.CheckCheckpoint(checkpoint, c, configPath);
+        }
+        catch (WeightsFormatException e)
+        {
+            problem = e.Message;
+        }
+        var outputs = new System.Text.Json.Nodes.JsonObject();
+        foreach (string e in Examples)
+        {
+            outputs[e] = new System.Text.Json.Nodes.JsonArray([.. Assay.Features.FeatureSpec.OutputFiles(e, c).Select(f => System.Text.Json.Nodes.JsonValue.Create(f))]);
+        }
+        var weights = new System.Text.Json.Nodes.JsonObject();
+        foreach (WeightPrecision p in Storages)
+        {
+            weights[Assay.Spellings.Of(p)] = LanguageModel.WeightBytesFor(c, p);
+        }
+        var report = new System.Text.Json.Nodes.JsonObject
+        {
+            ["model"] = folder,
+            ["family"] = "gpt2",
+            ["architecture"] = new System.Text.Json.Nodes.JsonObject
+            {
+                ["layers"] = c.Layers, ["width"] = c.Width, ["heads"] = c.Heads, ["head_width"] = c.HeadWidth, ["inner_width"] = c.InnerWidth,
+                ["context"] = c.ContextLength, ["vocabulary"] = c.VocabularySize, ["activation"] = Describe(c.Activation),
+                ["norm_epsilon"] = c.NormEpsilon, ["tied_head"] = c.TiedHead,
+            },
+            ["parameters"] = c.ParameterCount,
+            ["hidden_layers"] = new System.Text.Json.Nodes.JsonArray([.. Enumerable.Range(0, c.Layers + 1).Select(l => System.Text.Json.Nodes.JsonValue.Create(l))]),
+            ["weight_bytes"] = weights,
+            ["outputs"] = outputs,
+            ["tokenizer"] = new System.Text.Json.Nodes.JsonObject { ["source"] = tokenizer.Source, ["vocabulary"] = tokenizer.VocabularySize, ["end_of_text"] = tokenizer.EndOfTextId },
+            ["tensors"] = new System.Text.Json.Nodes.JsonArray([.. checkpoint.Tensors.OrderBy(t => t.Name, StringComparer.Ordinal).Select(t => new System.Text.Json.Nodes.JsonObject
+            {
+                ["name"] = t.Name, ["dtype"] = t.DType.Name(), ["shape"] = new System.Text.Json.Nodes.JsonArray([.. t.Shape.Select(x => System.Text.Json.Nodes.JsonValue.Create(x))]),
+                ["bytes"] = t.ByteLength, ["file"] = Path.GetFileName(t.FilePath),
+            })]),
+            ["files"] = new System.Text.Json.Nodes.JsonArray([.. ModelFile.Describe(folder).Select(f => new System.Text.Json.Nodes.JsonObject { ["name"] = f.Name, ["bytes"] = f.Bytes, ["sha256"] = f.Sha256 })]),
+            ["check"] = new System.Text.Json.Nodes.JsonObject
+            {
+                ["ok"] = problem == null,
+                ["problem"] = problem,
+                ["parameter_values"] = summary?.ParameterValues,
+                ["skipped_buffers"] = summary?.SkippedBuffers,
+            },
+        };
+        o.WriteLine(report.ToJsonString(JsonOutput.Options));
+        return problem == null ? 0 : CommandRunner.BadInput;
     }
 
     private static string Describe(Activation a) => a switch

@@ -17,19 +17,24 @@ internal static class NextCommand
             Description = "How many tokens to list.",
             DefaultValueFactory = _ => 10,
         };
-        var command = new Command("next", "List the most likely next tokens after a text, with their probabilities.") { text, folder, top };
+        var json = new Option<bool>("--json") { Description = "Write one JSON object instead of the table." };
+        var command = new Command("next", "List the most likely next tokens after a text, with their probabilities.") { text, folder, top, json };
+        var shared = new SharedOptions();
+        shared.AddModel(command, prompted: false);
         command.SetAction(r => CommandRunner.Run(() =>
-            Run(r.GetValue(folder)!.FullName, r.GetValue(text)!, r.GetValue(top), Console.Out)));
+            Run(r.GetValue(folder)!.FullName, r.GetValue(text)!, r.GetValue(top), Console.Out, r.GetValue(json), shared.Model(r))));
         return command;
     }
 
-    internal static int Run(string folder, string text, int top, TextWriter o)
+    internal static int Run(string folder, string text, int top, TextWriter o, bool json = false, ModelRun? run = null)
     {
         if (top < 1)
         {
             throw new ArgumentException($"--top {top}: expected a positive number");
         }
-        LanguageModel model = LanguageModel.Open(folder);
+        run ??= new ModelRun();
+        int threads = run.CheckedThreads;
+        LanguageModel model = LanguageModel.Open(folder, ModelOption.ParseWeights(run.Weights));
         if (top > model.Config.VocabularySize)
         {
             throw new ArgumentException($"--top {top}: expected 1 … {model.Config.VocabularySize} (the vocabulary)");
@@ -44,7 +49,7 @@ internal static class NextCommand
             // The most recent context decides the next word: keep the tail.
             ids = ids[^model.Config.ContextLength..];
         }
-        ForwardResult r = model.Forward([ids]);
+        ForwardResult r = model.Forward([ids], ForwardOptions.LastLogits with { MaxThreads = threads });
         float[] p = new float[r.VocabularySize];
         r.NextTokenProbabilities(0, p);
 
@@ -53,6 +58,19 @@ internal static class NextCommand
         Array.Sort(order, (a, b) => p[b] != p[a] ? p[b].CompareTo(p[a]) : a.CompareTo(b));
 
         CultureInfo inv = CultureInfo.InvariantCulture;
+        if (json)
+        {
+            o.WriteLine(new System.Text.Json.Nodes.JsonObject
+            {
+                ["tokens"] = ids.Length,
+                ["vocabulary"] = p.Length,
+                ["next"] = new System.Text.Json.Nodes.JsonArray([.. order.Take(n).Select((id, i) => new System.Text.Json.Nodes.JsonObject
+                {
+                    ["rank"] = i + 1, ["id"] = id, ["token"] = model.Tokenizer.Decode([id]), ["probability"] = p[id],
+                })]),
+            }.ToJsonString(JsonOutput.Options));
+            return 0;
+        }
         o.WriteLine(string.Create(inv, $"{ids.Length} tokens in; next-token distribution over {p.Length:N0} ids"));
         o.WriteLine("rank  probability      id  token");
         for (int i = 0; i < n; i++)

@@ -125,7 +125,7 @@ internal static class ProbeCommand
             RunFeatures data = RunFeatures.Load(testRun, stem);
             ProbeScore scored = ProbeScorer.Score(probe, data, testRun);
             ClassificationReport score = scored.Report;
-            WritePredictions(Path.Combine(output, ReportFolder.PredictionsFile), data, probe, scored.Probabilities);
+            Predictions.Write(Path.Combine(output, ReportFolder.PredictionsFile), data.Ids, data.Labels, probe.Classes, scored.Probabilities);
             var tested = new JsonObject { ["run"] = testRun };
             foreach ((string key, JsonNode? value) in score.ToJson(probe.Classes))
             {
@@ -143,37 +143,8 @@ internal static class ProbeCommand
                 o.WriteLine(string.Create(inv, $"majority baseline: {accuracy:P2} (always \"{majority}\", the training set's most frequent class)"));
             }
         }
-        WriteJson(Path.Combine(output, ReportFolder.ReportFile), report);
+        Predictions.WriteJson(Path.Combine(output, ReportFolder.ReportFile), report);
         return 0;
     }
 
-    private static void WriteJson(string path, JsonObject json) =>
-        File.WriteAllText(path, json.ToJsonString(new JsonSerializerOptions { WriteIndented = true, Encoder = System.Text.Encodings.Web.JavaScriptEncoder.UnsafeRelaxedJsonEscaping }) + "\n");
-
-    private static void WritePredictions(string path, RunFeatures data, LinearProbe probe, double[] p)
-    {
-        int k = probe.Classes.Count;
-        using var file = File.Create(path);
-        using CsvWriter w = CsvWriter.Create(file, new CsvWriterOptions { NewLine = "\n" });
-        w.WriteField("id");
-        w.WriteField("label");
-        w.WriteField("predicted");
-        foreach (string c in probe.Classes)
-        {
-            w.WriteField("p_" + c);
-        }
-        w.EndRecord();
-        for (int i = 0; i < data.Rows; i++)
-        {
-            ReadOnlySpan<double> row = p.AsSpan(i * k, k);
-            w.WriteField(data.Ids[i]);
-            w.WriteField(data.Labels[i]);
-            w.WriteField(probe.Classes[LinearProbe.MostLikely(row)]);
-            foreach (double v in row)
-            {
-                w.WriteField(v.ToString("R", CultureInfo.InvariantCulture));
-            }
-            w.EndRecord();
-        }
-    }
 }

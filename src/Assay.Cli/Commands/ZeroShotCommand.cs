@@ -1,5 +1,6 @@
 using System.CommandLine;
 using System.Globalization;
+using System.Text.Json.Nodes;
 using Assay.Evaluation;
 using Assay.Features;
 using Assay.Input;
@@ -19,35 +20,48 @@ internal static class ZeroShotCommand
         var model = ModelOption.Create();
         var verbalizer = new Option<FileInfo>("--verbalizer") { Description = "Label words: one line per label, \"label: word, word\".", Required = true };
         var prompt = new Option<string>("--prompt") { Description = "Template ending where the label word should follow, e.g. \"{text} It is a kind of\".", Required = true };
-        var full = new Option<bool>("--full-words") { Description = "Score each word by the likelihood of all its tokens (default: its first token's probability)." };
-        var format = new Option<string>("--format") { Description = "auto, lines, jsonl, csv or tsv.", DefaultValueFactory = _ => "auto" };
-        var textField = new Option<string>("--text-field") { DefaultValueFactory = _ => "text", Description = "Field of the text." };
-        var labelField = new Option<string>("--label-field") { DefaultValueFactory = _ => "label", Description = "Field of the label." };
+        var full = new Option<bool>("--words-loglik") { Description = "Score each word by the likelihood of all its tokens, as the words-loglik feature (default: its first token's probability, as words)." };
+        var output = new Option<DirectoryInfo>("--out", "-o") { Description = "Folder for report.json and predictions.csv (the probe's report shape)." };
+        var overwrite = new Option<bool>("--overwrite") { Description = "Replace an earlier report in the output folder." };
+        var shared = new SharedOptions();
         var command = new Command("zero-shot", "Classify labelled texts by the likeliest label words after a prompt (no training) and report accuracy.")
         {
-            input, model, verbalizer, prompt, full, format, textField, labelField,
+            input, model, verbalizer, prompt, full, output, overwrite,
         };
-        command.SetAction(r => CommandRunner.Run(() => Run(r.GetValue(model)!.FullName, r.GetValue(input)!.FullName, r.GetValue(verbalizer)!.FullName,
-            r.GetValue(prompt)!, r.GetValue(full), ExtractCommand.Format(r.GetValue(format)!), r.GetValue(textField)!, r.GetValue(labelField)!, Console.Out)));
+        shared.AddInput(command, fields: true);
+        shared.AddModel(command, prompted: true);
+        command.SetAction(r => CommandRunner.Run(() =>
+        {
+            InputFields fields = shared.Fields(r, labelRequired: true);
+            return Run(r.GetValue(model)!.FullName, r.GetValue(input)!.FullName, r.GetValue(verbalizer)!.FullName,
+                r.GetValue(prompt)!, r.GetValue(full), ExtractCommand.Format(r.GetValue(shared.Format)!), fields.Text, fields.Label, Console.Out,
+                r.GetValue(output)?.FullName, r.GetValue(overwrite), shared.Model(r), fields.IdRequired ? fields.Id : null);
+        }));
         return command;
     }
 
     internal static int Run(string folder, string input, string verbalizerPath, string prompt, bool fullWords, InputFormat format,
-        string textField, string labelField, TextWriter o)
+        string textField, string labelField, TextWriter o, string? outFolder = null, bool overwrite = false,
+        ModelRun? run = null, string? idField = null)
     {
         PromptTemplate template = ExtractCommand.Prompt(prompt);
-        Verbalizer v = Verbalizer.Load(verbalizerPath);
-        LanguageModel m = LanguageModel.Open(folder);
-        var extractor = new FeatureExtractor(m, new ExtractionOptions
+        if (outFolder != null)
         {
-            Prompt = template,
-            Features = [new WordListFeature(v.AllWords, fullWords)],
-        });
+            // Refused before any text is scored, like a probe's output folder.
+            ReportFolder.CheckClaimable(outFolder, overwrite);
+        }
+        run ??= new ModelRun();
+        Verbalizer v = Verbalizer.Load(verbalizerPath);
+        ExtractionOptions options = run.Extraction(template, [new WordListFeature(v.AllWords, fullWords)]);
+        LanguageModel m = LanguageModel.Open(folder, ModelOption.ParseWeights(run.Weights));
+        var extractor = new FeatureExtractor(m, options);
         int output = fullWords ? 1 : 0;
         var classes = new LabelIndex(v.Labels);
-        using TextInputReader reader = TextInputReader.Open(input, format, new InputFields { Text = textField, Label = labelField, LabelRequired = true });
+        using TextInputReader reader = TextInputReader.Open(input, format, new InputFields { Text = textField, Label = labelField, LabelRequired = true, Id = idField ?? "id", IdRequired = idField != null });
         var truth = new List<int>();
         var texts = new List<string>();
+        var ids = new List<string>();
+        var labels = new List<string>();
         long skipped = 0, unlabelled = 0, unknown = 0;
         string? firstUnknown = null;
         foreach (InputRecord r in reader.Records())
@@ -56,6 +70,8 @@ internal static class ZeroShotCommand
             {
                 truth.Add(label);
                 texts.Add(r.Text!);
+                ids.Add(r.Id);
+                labels.Add(r.Label);
             }
             else
             {
@@ -84,9 +100,31 @@ internal static class ZeroShotCommand
             scorer.Add(f.Values(output), truth[scorer.Rows]);
         }
         ClassificationReport score = scorer.Report();
+        string majority = labels.GroupBy(l => l, StringComparer.Ordinal).OrderByDescending(g => g.Count()).ThenBy(g => g.Key, StringComparer.Ordinal).First().Key;
+        double majorityShare = labels.Count(l => l == majority) / (double)labels.Count;
+        if (outFolder != null)
+        {
+            ReportFolder.Claim(outFolder, overwrite);
+            Predictions.Write(Path.Combine(outFolder, ReportFolder.PredictionsFile), ids, labels, classes.Classes, scorer.Probabilities());
+            var test = new JsonObject { ["input"] = input };
+            foreach ((string key, JsonNode? value) in score.ToJson(classes.Classes))
+            {
+                test[key] = value?.DeepClone();
+            }
+            Predictions.WriteJson(Path.Combine(outFolder, ReportFolder.ReportFile), new JsonObject
+            {
+                ["feature"] = fullWords ? "words-loglik" : "words",
+                ["verbalizer"] = verbalizerPath,
+                ["prompt"] = prompt,
+                ["test"] = test,
+                ["chance_baseline"] = 1.0 / classes.Count,
+                // No training set here: the most frequent label of the scored texts themselves (a constant predictor's best).
+                ["majority_baseline"] = new JsonObject { ["class"] = majority, ["accuracy"] = majorityShare },
+            });
+        }
         CultureInfo inv = CultureInfo.InvariantCulture;
         o.WriteLine(string.Create(inv, $"{score.Rows:N0} texts ({skipped:N0} records skipped: rejected, or a label the verbalizer lacks), {k} labels, scored by {(fullWords ? "the likelihood of whole words" : "first-token probability")}"));
-        o.WriteLine(string.Create(inv, $"accuracy {score.Accuracy:P2} (95 % bootstrap {score.AccuracyLow:P2} – {score.AccuracyHigh:P2}), log loss {score.LogLoss:F4}, macro-F1 {score.MacroF1:F4}; chance {1.0 / k:P2}"));
+        o.WriteLine(string.Create(inv, $"accuracy {score.Accuracy:P2} (95 % bootstrap {score.AccuracyLow:P2} – {score.AccuracyHigh:P2}), log loss {score.LogLoss:F4}, macro-F1 {score.MacroF1:F4}; chance {1.0 / k:P2}, majority {majorityShare:P2} (\"{majority}\")"));
         o.WriteLine("confusion (rows: true label, columns: predicted)");
         o.WriteLine(string.Join(' ', v.Labels));
         for (int i = 0; i < k; i++)

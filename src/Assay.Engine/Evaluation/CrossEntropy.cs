@@ -30,8 +30,8 @@ public sealed record CrossEntropyResult(long Texts, long Tokens, long Bytes, dou
 /// </summary>
 public static class CrossEntropy
 {
-    /// <exception cref="ArgumentException">The stride is not in 1 … context length.</exception>
-    public static CrossEntropyResult Score(LanguageModel model, IEnumerable<string> texts, int? stride = null)
+    /// <exception cref="ArgumentException">The stride is not in 1 … context length. <paramref name="maxThreads"/> bounds the workers (0: all cores); results do not depend on it.</exception>
+    public static CrossEntropyResult Score(LanguageModel model, IEnumerable<string> texts, int? stride = null, int maxThreads = 0)
     {
         ArgumentNullException.ThrowIfNull(model);
         ArgumentNullException.ThrowIfNull(texts);
@@ -52,7 +52,7 @@ public static class CrossEntropy
             for (int begin = 0; scoredUpTo < ids.Length; begin = Math.Min(begin + step, scoredUpTo - 1))
             {
                 int end = Math.Min(begin + context, ids.Length);
-                ForwardResult r = model.Forward([ids[begin..end]], new ForwardOptions { Logits = LogitPositions.All });
+                ForwardResult r = model.Forward([ids[begin..end]], new ForwardOptions { Logits = LogitPositions.All, MaxThreads = maxThreads });
                 for (int target = Math.Max(begin + 1, scoredUpTo); target < end; target++)
                 {
                     nats -= r.LogProbability(0, target - 1 - begin, ids[target]);

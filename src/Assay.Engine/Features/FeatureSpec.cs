@@ -60,6 +60,18 @@ public static class FeatureSpec
         return result.Count > 0 ? result : throw new ArgumentException("the feature list is empty");
     }
 
+    /// <summary>
+    /// The files (.npy) a feature list writes for a model of <paramref name="config"/>, in order (word and completion
+    /// lists are not needed: their names do not depend on the items).
+    /// </summary>
+    /// <exception cref="ArgumentException">The list does not parse or does not fit the model.</exception>
+    public static IReadOnlyList<string> OutputFiles(string list, Config.ModelConfig config)
+    {
+        ArgumentNullException.ThrowIfNull(config);
+        var shape = ModelShape.Of(config);
+        return [.. Parse(list, config.Layers, _ => [""]).SelectMany(r => r.Outputs(shape)).Select(o => o.Name + ".npy")];
+    }
+
     /// <summary>One comma-separated entry being parsed, with the helpers the kinds' parsers share.</summary>
     internal sealed class Item(string raw, string[] parts, int layers, Func<string, string, IReadOnlyList<string>> lists)
     {

@@ -59,6 +59,19 @@ internal sealed class PackedMatrix
     public long Bytes => ((Data?.LongLength ?? 0) * 4) + ((Pairs?.LongLength ?? 0) * 4) + (Quads?.LongLength ?? 0)
         + ((Scales?.LongLength ?? 0) * 4) + ((ColumnSums?.LongLength ?? 0) * 4) + ((Bias?.LongLength ?? 0) * 4);
 
+    /// <summary>The <see cref="Bytes"/> a K × N pack in <paramref name="precision"/> takes, with or without a bias, before it is made.</summary>
+    public static long BytesFor(int rows, int columns, WeightPrecision precision, bool bias)
+    {
+        long panels = (columns + PanelWidth - 1) / PanelWidth, padded = panels * PanelWidth;
+        long biasBytes = bias ? 4 * padded : 0;
+        return precision switch
+        {
+            WeightPrecision.BFloat16 => (panels * rows * PairWidth * 4) + biasBytes,
+            WeightPrecision.Integer8 => (panels * ((rows + QuadDepth - 1) / QuadDepth) * PanelWidth * QuadDepth) + (4 * padded) + (4 * padded) + biasBytes,
+            _ => (panels * rows * PanelWidth * 4) + biasBytes,
+        };
+    }
+
     /// <summary>Groups of <see cref="QuadDepth"/> rows of K, the last zero-padded.</summary>
     public int Groups => (Rows + QuadDepth - 1) / QuadDepth;
 

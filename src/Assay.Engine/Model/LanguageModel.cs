@@ -48,6 +48,13 @@ public sealed class LanguageModel
     /// <summary>Bytes the converted parameters take in memory.</summary>
     public long WeightBytes => _weights.Bytes;
 
+    /// <summary>The <see cref="WeightBytes"/> a model of <paramref name="config"/> takes when opened in <paramref name="precision"/>, computed without opening it.</summary>
+    public static long WeightBytesFor(ModelConfig config, WeightPrecision precision)
+    {
+        ArgumentNullException.ThrowIfNull(config);
+        return Gpt2.Gpt2Layout.WeightBytes(config, precision);
+    }
+
     /// <summary>Opens a checkpoint folder: reads and validates config.json, the tokenizer and every tensor.</summary>
     /// <exception cref="ModelConfigException">config.json is missing, malformed or unsupported.</exception>
     /// <exception cref="WeightsFormatException">The weights are malformed or do not match the config.</exception>

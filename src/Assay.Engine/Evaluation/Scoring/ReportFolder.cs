@@ -16,12 +16,31 @@ public static class ReportFolder
     /// <summary>One row per scored text: id, label, predicted label, probabilities.</summary>
     public const string PredictionsFile = "predictions.csv";
 
+    /// <summary>Checks, without touching it, that <see cref="Claim"/> would take <paramref name="folder"/>.</summary>
+    /// <exception cref="Output.RunFolderException">As <see cref="Claim"/>.</exception>
+    public static void CheckClaimable(string folder, bool overwrite)
+    {
+        ArgumentNullException.ThrowIfNull(folder);
+        if (Directory.Exists(folder))
+        {
+            Check(folder, overwrite);
+        }
+    }
+
     /// <summary>Takes <paramref name="folder"/> for a new report.</summary>
     /// <exception cref="Output.RunFolderException">Foreign files, or an earlier report without <paramref name="overwrite"/>.</exception>
     public static void Claim(string folder, bool overwrite)
     {
         ArgumentNullException.ThrowIfNull(folder);
         Directory.CreateDirectory(folder);
+        foreach (string name in Check(folder, overwrite))
+        {
+            File.Delete(Path.Combine(folder, name));
+        }
+    }
+
+    private static string[] Check(string folder, bool overwrite)
+    {
         string[] names = [.. Directory.EnumerateFileSystemEntries(folder).Select(e => Path.GetFileName(e)!)];
         string[] foreign = [.. names.Where(n => n is not (ProbeFile or ReportFile or PredictionsFile) && !n.EndsWith(Output.AtomicFile.TemporarySuffix, StringComparison.Ordinal))];
         if (foreign.Length > 0)
@@ -32,9 +51,6 @@ public static class ReportFolder
         {
             throw new Output.RunFolderException(folder, "holds an earlier report, which is never overwritten unless asked; pass --overwrite to replace it");
         }
-        foreach (string name in names)
-        {
-            File.Delete(Path.Combine(folder, name));
-        }
+        return names;
     }
 }

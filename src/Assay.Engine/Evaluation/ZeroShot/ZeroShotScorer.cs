@@ -33,6 +33,9 @@ public sealed class ZeroShotScorer(Verbalizer verbalizer, LabelIndex classes, bo
         _truth.Add(truth);
     }
 
+    /// <summary>The label distributions of the rows added (rows × classes, in the class order).</summary>
+    public double[] Probabilities() => [.. _probabilities];
+
     /// <summary>The report of the rows added.</summary>
     public ClassificationReport Report() => ClassificationReport.Score([.. _probabilities], [.. _truth], classes.Count);
 }

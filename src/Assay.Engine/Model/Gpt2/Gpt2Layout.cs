@@ -90,6 +90,18 @@ internal static class Gpt2Layout
             headBytes: outputHead.Uses(tokenEmbedding) ? 0 : outputHead.Bytes);
     }
 
+    /// <summary>The bytes <see cref="Load"/> gives a model of this config in <paramref name="precision"/> (its <see cref="ModelWeights.Bytes"/>), without loading it.</summary>
+    public static long WeightBytes(ModelConfig config, WeightPrecision precision)
+    {
+        int d = config.Width, m = config.InnerWidth, v = config.VocabularySize;
+        WeightPrecision tables = precision == WeightPrecision.Integer8 ? WeightPrecision.BFloat16 : precision;
+        long table = PackedMatrix.BytesFor(d, v, tables, bias: false);
+        long block = (2 * 2 * 4L * d)
+            + PackedMatrix.BytesFor(d, 3 * d, precision, bias: true) + PackedMatrix.BytesFor(d, d, precision, bias: true)
+            + PackedMatrix.BytesFor(d, m, precision, bias: true) + PackedMatrix.BytesFor(m, d, precision, bias: true);
+        return table + (4L * config.ContextLength * d) + (config.Layers * block) + (2 * 4L * d) + (config.TiedHead ? 0 : table);
+    }
+
     /// <summary>
     /// Validates names, shapes and dtypes of the whole checkpoint before anything is converted; see
     /// <see cref="LanguageModel.CheckCheckpoint"/>.

@@ -1,0 +1,92 @@
+using System.CommandLine;
+using Assay.Features;
+using Assay.Input;
+
+namespace Assay.Cli.Commands;
+
+/// <summary>How a command runs the model, as every model command spells it: --weights, --threads, and for
+/// commands that fill a prompt --token-budget, --keep and --no-leading-space.</summary>
+internal sealed record ModelRun(string Weights = "float32", int Threads = 0, int TokenBudget = 4096, string Keep = "head", bool LeadingSpace = true)
+{
+    /// <summary>The extraction options these give, validated with the options named.</summary>
+    public ExtractionOptions Extraction(PromptTemplate prompt, IReadOnlyList<FeatureRequest> features)
+    {
+        ExtractCommand.Positive("--token-budget", TokenBudget);
+        return new ExtractionOptions
+        {
+            Prompt = prompt,
+            Features = features,
+            Truncation = Spellings.Parse<TextTruncation>("--keep", Keep),
+            LeadingSpace = LeadingSpace,
+            TokenBudget = TokenBudget,
+            MaxThreads = CheckedThreads,
+        };
+    }
+
+    /// <summary>--threads, refused below 0.</summary>
+    public int CheckedThreads => Threads >= 0 ? Threads
+        : throw new ArgumentException(string.Create(System.Globalization.CultureInfo.InvariantCulture, $"--threads {Threads}: expected 0 (all cores) or a positive count"));
+}
+
+/// <summary>The options every model command shares, made once so they read and default alike everywhere.</summary>
+internal sealed class SharedOptions
+{
+    public Option<string> Weights { get; } = ModelOption.CreateWeights();
+
+    public Option<int> Threads { get; } = new("--threads") { Description = "Worker threads; 0 = all cores. Outputs do not depend on it.", DefaultValueFactory = _ => 0 };
+
+    public Option<int> TokenBudget { get; } = new("--token-budget") { Description = "Tokens per forward pass.", DefaultValueFactory = _ => new ExtractionOptions().TokenBudget };
+
+    public Option<string> Keep { get; } = new("--keep") { Description = "Which end of an over-long text to keep: head or tail. The prompt is never cut.", DefaultValueFactory = _ => "head" };
+
+    public Option<bool> NoLeadingSpace { get; } = new("--no-leading-space") { Description = "Score words and completions exactly as written, without a space before them." };
+
+    public Option<string> Format { get; } = new("--format") { Description = "auto, lines, jsonl, csv or tsv.", DefaultValueFactory = _ => "auto" };
+
+    public Option<string> TextField { get; } = new("--text-field") { Description = "JSONL field or CSV column of the text.", DefaultValueFactory = _ => "text" };
+
+    public Option<string> IdField { get; } = new("--id-field") { Description = "Field of the row id; when given, records without it are rejected (default: id if present, else the line number)." };
+
+    public Option<string> LabelField { get; } = new("--label-field") { Description = "Field of the label; when given, records without it are rejected (default: label if present)." };
+
+    /// <summary>Adds --weights and --threads, and with <paramref name="prompted"/> --token-budget, --keep and --no-leading-space.</summary>
+    public void AddModel(Command command, bool prompted)
+    {
+        command.Options.Add(Weights);
+        command.Options.Add(Threads);
+        if (prompted)
+        {
+            command.Options.Add(TokenBudget);
+            command.Options.Add(Keep);
+            command.Options.Add(NoLeadingSpace);
+        }
+    }
+
+    /// <summary>Adds --format and --text-field, and with <paramref name="fields"/> --id-field and --label-field.</summary>
+    public void AddInput(Command command, bool fields)
+    {
+        command.Options.Add(Format);
+        command.Options.Add(TextField);
+        if (fields)
+        {
+            command.Options.Add(IdField);
+            command.Options.Add(LabelField);
+        }
+    }
+
+    public ModelRun Model(ParseResult r) => new(r.GetValue(Weights)!, r.GetValue(Threads), r.GetValue(TokenBudget), r.GetValue(Keep)!, !r.GetValue(NoLeadingSpace));
+
+    /// <summary>The input fields; a label is required where <paramref name="labelRequired"/>, else only when --label-field is given.</summary>
+    public InputFields Fields(ParseResult r, bool labelRequired = false)
+    {
+        string? id = r.GetValue(IdField), label = r.GetValue(LabelField);
+        return new InputFields
+        {
+            Text = r.GetValue(TextField)!,
+            Id = id ?? "id",
+            IdRequired = id != null,
+            Label = label ?? "label",
+            LabelRequired = labelRequired || label != null,
+        };
+    }
+}
