@@ -196,7 +196,9 @@ public static class ExtractionRun
                 ["width"] = model.Config.Width,
                 ["vocabulary"] = model.Config.VocabularySize,
                 ["context"] = model.Config.ContextLength,
-                ["tokenizer"] = Path.GetFileName(model.Tokenizer.Source),
+                // Every file the ids come from (vocab.json and merges.txt, or tokenizer.json); the embedded encoding by name.
+                ["tokenizer"] = model.Tokenizer.Files.Count == 0 ? new JsonArray(model.Tokenizer.Source)
+                    : new JsonArray([.. model.Tokenizer.Files.Select(f => JsonValue.Create(Path.GetFileName(f)))]),
                 ["weights"] = Spellings.Of(model.Precision),
                 ["files"] = modelFiles,
             },

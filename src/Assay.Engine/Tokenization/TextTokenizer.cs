@@ -22,12 +22,13 @@ public sealed partial class TextTokenizer
 
     private readonly Tokenizer _tokenizer;
 
-    private TextTokenizer(Tokenizer tokenizer, int endOfTextId, int vocabularySize, string source)
+    private TextTokenizer(Tokenizer tokenizer, int endOfTextId, int vocabularySize, string source, IReadOnlyList<string> files)
     {
         _tokenizer = tokenizer;
         EndOfTextId = endOfTextId;
         VocabularySize = vocabularySize;
         Source = source;
+        Files = files;
     }
 
     /// <summary>Id of <see cref="EndOfTextMarker"/>.</summary>
@@ -38,6 +39,9 @@ public sealed partial class TextTokenizer
 
     /// <summary>Where the vocabulary came from: file paths, or "embedded GPT-2 encoding".</summary>
     public string Source { get; }
+
+    /// <summary>The files the tokenizer was read from (none for the embedded GPT-2 encoding).</summary>
+    public IReadOnlyList<string> Files { get; }
 
     /// <summary>
     /// Opens the tokenizer of a model folder: vocab.json + merges.txt if both exist, else tokenizer.json, else the
@@ -72,7 +76,7 @@ public sealed partial class TextTokenizer
     {
         TiktokenTokenizer t = TiktokenTokenizer.CreateForModel("gpt2");
         int eot = t.SpecialTokens![EndOfTextMarker];
-        return new TextTokenizer(t, eot, eot + 1, "embedded GPT-2 encoding");
+        return new TextTokenizer(t, eot, eot + 1, "embedded GPT-2 encoding", []);
     }
 
     /// <summary>Byte-level BPE from a vocab.json (token → id) and a merges.txt (one "left right" pair per line, in
@@ -81,7 +85,7 @@ public sealed partial class TextTokenizer
     {
         Dictionary<string, int> vocabulary = ReadVocabulary(vocabPath);
         List<string> merges = ReadMerges(mergesPath, vocabPath, vocabulary);
-        return Build(vocabulary, merges, $"{vocabPath} + {mergesPath}", vocabPath);
+        return Build(vocabulary, merges, [vocabPath, mergesPath], vocabPath);
     }
 
     /// <summary>Byte-level BPE from the "model" section (type "BPE", "vocab", "merges") of a JSON tokenizer definition.</summary>
@@ -129,7 +133,7 @@ public sealed partial class TextTokenizer
                 merges.Add(merge);
                 i++;
             }
-            return Build(vocabulary, merges, path, path);
+            return Build(vocabulary, merges, [path], path);
         }
     }
 
@@ -149,7 +153,7 @@ public sealed partial class TextTokenizer
     /// <summary>The text of a sequence of ids (bytes that do not form whole UTF-8 characters become U+FFFD).</summary>
     public string Decode(IEnumerable<int> ids) => _tokenizer.Decode(ids) ?? string.Empty;
 
-    private static TextTokenizer Build(Dictionary<string, int> vocabulary, List<string> merges, string source, string vocabSource)
+    private static TextTokenizer Build(Dictionary<string, int> vocabulary, List<string> merges, string[] files, string vocabSource)
     {
         if (!vocabulary.TryGetValue(EndOfTextMarker, out int eot))
         {
@@ -171,9 +175,9 @@ public sealed partial class TextTokenizer
         }
         catch (Exception e) when (e is ArgumentException or InvalidOperationException or FormatException)
         {
-            throw new TokenizerFileException(source, $"the BPE tables are inconsistent ({e.Message})", e);
+            throw new TokenizerFileException(string.Join(" + ", files), $"the BPE tables are inconsistent ({e.Message})", e);
         }
-        return new TextTokenizer(tokenizer, eot, maxId + 1, source);
+        return new TextTokenizer(tokenizer, eot, maxId + 1, string.Join(" + ", files), files);
     }
 
     private static Dictionary<string, int> ReadVocabulary(string path)

@@ -73,12 +73,12 @@ public sealed class StudySpecTests
         File.WriteAllText(t.File("out/results.md"), "old");
         Assert.Contains("without its study.json", Assert.Throws<StudyException>(() => Study.Run(spec, t.File("out"))).Message, StringComparison.Ordinal);
 
-        // --overwrite starts over: the old parts and reports go before anything runs (here the empty model folder
-        // then stops the study).
-        Assert.ThrowsAny<InvalidInputException>(() => Study.Run(spec, t.File("out"), overwrite: true));
-        Assert.False(File.Exists(t.File("out/results.md")));
-        Assert.False(Directory.Exists(t.File("out/runs")));
-        Assert.True(File.Exists(t.File("out/study.json")));
+        // --overwrite starts over only once everything the study reads is checked: here the empty model folder stops
+        // it first, and the old parts stay.
+        Assert.Contains("config.json", Assert.ThrowsAny<InvalidInputException>(() => Study.Run(spec, t.File("out"), overwrite: true)).Message, StringComparison.Ordinal);
+        Assert.True(File.Exists(t.File("out/results.md")));
+        Assert.True(Directory.Exists(t.File("out/runs")));
+        Assert.False(File.Exists(t.File("out/study.json")));
     }
 
     [Fact]
@@ -87,5 +87,29 @@ public sealed class StudySpecTests
         using TempFolder t = Folder();
         File.WriteAllText(t.File("s.json"), "{ \"train\": ");
         Assert.Contains("not a JSON object", Assert.Throws<StudyException>(() => StudySpec.Load(t.File("s.json"))).Message, StringComparison.Ordinal);
+    }
+
+    [Fact]
+    public void Every_model_folder_and_the_verbalizer_are_checked_before_anything_runs()
+    {
+        // Two good models and a broken third: the study stops at once, naming the third, with nothing written.
+        using TempFolder t = Folder();
+        string good = Checkpoints.Folder(Features.FeatureExtractorTests.Spec);
+        File.WriteAllLines(t.File("train.jsonl"), Enumerable.Range(0, 20).Select(i => $"{{\"id\": \"r{i}\", \"text\": \"{Features.FeatureExtractorTests.Texts[i % Features.FeatureExtractorTests.Texts.Length]}\", \"label\": \"{i % 4}\"}}"));
+        File.Copy(t.File("train.jsonl"), t.File("test.jsonl"), overwrite: true);
+        string study = Valid.Replace("\"models\": { \"m\": \"model\" }", $"\"models\": {{ \"a\": \"{good}\", \"b\": \"{good}\", \"c\": \"model\" }}", StringComparison.Ordinal);
+        File.WriteAllText(t.File("s.json"), study);
+        var e = Assert.ThrowsAny<InvalidInputException>(() => Study.Run(StudySpec.Load(t.File("s.json")), t.File("out")));
+        Assert.Contains(Path.Combine(t.File("model"), "config.json"), e.Message, StringComparison.Ordinal);
+        Assert.Empty(Directory.EnumerateFileSystemEntries(t.File("out")));
+
+        // A layer the models lack, and a verbalizer whose labels are not the task's (labels 0 … 3 here).
+        File.WriteAllText(t.File("s.json"), study.Replace(", \"c\": \"model\"", "", StringComparison.Ordinal).Replace("[\"hidden\", \"cmean\"]", "[\"hidden:7\"]", StringComparison.Ordinal));
+        Assert.Contains("features: hidden:7: model \"a\"", Assert.Throws<StudyException>(() => Study.Run(StudySpec.Load(t.File("s.json")), t.File("out"))).Message, StringComparison.Ordinal);
+        File.WriteAllLines(t.File("v.txt"), ["0: lamp", "1: salt", "9: oar"]);
+        File.WriteAllText(t.File("s.json"), study.Replace(", \"c\": \"model\"", "", StringComparison.Ordinal)
+            .Replace("[\"hidden\", \"cmean\"]", "[\"zero-shot\"], \"verbalizer\": \"v.txt\"", StringComparison.Ordinal));
+        Assert.Contains("the verbalizer's labels and the task's differ", Assert.Throws<StudyException>(() => Study.Run(StudySpec.Load(t.File("s.json")), t.File("out"))).Message, StringComparison.Ordinal);
+        Assert.Empty(Directory.EnumerateFileSystemEntries(t.File("out")));
     }
 }

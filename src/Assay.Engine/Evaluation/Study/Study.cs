@@ -25,7 +25,13 @@ public static class Study
         ArgumentNullException.ThrowIfNull(spec);
         ArgumentNullException.ThrowIfNull(outFolder);
         outFolder = Path.GetFullPath(outFolder);
-        Prepare(spec, outFolder, overwrite);
+        // The folder is judged, then everything the study reads is checked, and only then is anything deleted or written.
+        string[]? startOver = Claim(spec, outFolder, overwrite);
+        Check(spec);
+        if (startOver != null)
+        {
+            StartOver(spec, outFolder, startOver);
+        }
         string data = Directory.CreateDirectory(Path.Combine(outFolder, StudyFolder.DataFolder)).FullName;
         string trainFile = Subsample(spec.Train, spec.TrainEvery, spec.Probe.Folds, Path.Combine(data, "train.jsonl"));
         string testFile = Subsample(spec.Test, spec.TestEvery, 1, Path.Combine(data, "test.jsonl"));
@@ -76,6 +82,51 @@ public static class Study
             }
         }
         return new StudyResult(spec, classes.Classes, Prior(classes, trainFile, testFile), models, results, Curves(spec, models, results));
+    }
+
+    /// <summary>
+    /// Everything a study reads, checked before anything is computed or written: both task files (every record, a
+    /// label on each), the verbalizer against the training labels (for zero-shot), and every model folder (config,
+    /// tokenizer, tensors against the config, and each feature kind against its layers), so a bad last model cannot
+    /// stop a study after hours of work on the first.
+    /// </summary>
+    private static void Check(StudySpec spec)
+    {
+        LabelIndex trainLabels = LabelIndex.Sorted(ReadRecords(spec.Train).Select(r => r.Label));
+        string? unknown = trainLabels.FirstUnknown(ReadRecords(spec.Test).Select(r => r.Label));
+        if (unknown != null)
+        {
+            throw new StudyException(spec.Test, $"test label \"{unknown}\" has no training rows in {spec.Train}");
+        }
+        if (spec.Verbalizer != null)
+        {
+            Verbalizer verbalizer = Verbalizer.Load(spec.Verbalizer);
+            string? missing = trainLabels.Classes.Except(verbalizer.Labels, StringComparer.Ordinal)
+                .Concat(verbalizer.Labels.Except(trainLabels.Classes, StringComparer.Ordinal)).FirstOrDefault();
+            if (missing != null && spec.Features.Contains("zero-shot"))
+            {
+                throw new StudyException(spec.Verbalizer, $"the verbalizer's labels and the task's differ (\"{missing}\" is in one only); zero-shot needs the same labels");
+            }
+        }
+        foreach ((string name, string folder) in spec.Models)
+        {
+            string configPath = Path.Combine(folder, Config.ModelConfig.FileName);
+            Config.ModelConfig config = Config.ModelConfig.Load(configPath);
+            _ = Tokenization.TextTokenizer.OpenFolder(folder);
+            using (Weights.SafetensorsCheckpoint checkpoint = Weights.SafetensorsCheckpoint.Open(folder))
+            {
+                LanguageModel.CheckCheckpoint(checkpoint, config, configPath);
+            }
+            foreach (string feature in spec.Features.Where(f => f.StartsWith(HiddenStateFeature.Name, StringComparison.Ordinal)))
+            {
+                FeatureRequest request = FeatureSpec.Parse(feature, config.Layers).Single();
+                int layer = ((HiddenStateFeature)request).Layer;
+                if (layer < -(config.Layers + 1) || layer > config.Layers)
+                {
+                    throw new StudyException(spec.Path, string.Create(CultureInfo.InvariantCulture, $"features: {feature}: model \"{name}\" ({folder}) has layers 0 … {config.Layers}"));
+                }
+            }
+        }
     }
 
     private static ClassificationReport Prior(LabelIndex classes, string trainFile, string testFile)
@@ -184,7 +235,12 @@ public static class Study
         return new StudyCell(model, prompt, "zero-shot", 0, 0, null, scorer.Report());
     }
 
-    private static void Prepare(StudySpec spec, string folder, bool overwrite)
+    /// <summary>
+    /// What the folder holds: foreign files, another study (without overwrite) and parts without a study file (without
+    /// overwrite) are refused; the same study is continued (null); anything else starts over (the entries to remove).
+    /// Nothing is changed here but creating the folder.
+    /// </summary>
+    private static string[]? Claim(StudySpec spec, string folder, bool overwrite)
     {
         Directory.CreateDirectory(folder);
         string specPath = Path.Combine(folder, StudyFolder.SpecFile);
@@ -202,13 +258,18 @@ public static class Study
                 string field = current.Select(p => p.Key).FirstOrDefault(k => !JsonNode.DeepEquals(stored?[k], current[k])) ?? "study";
                 throw new StudyException(folder, $"holds a study made with a different {field.Replace('_', ' ')}; give another folder, or pass --overwrite to start over");
             }
-            return;
+            return null;
         }
         if (!overwrite && entries.Length > 0)
         {
             throw new StudyException(folder, $"holds parts of a study without its {StudyFolder.SpecFile}; pass --overwrite to start over");
         }
-        // Starting over: the earlier study's parts and reports go, so nothing stale stays beside the new results.
+        return entries;
+    }
+
+    /// <summary>Starting over: the earlier study's parts and reports go, so nothing stale stays beside the new results.</summary>
+    private static void StartOver(StudySpec spec, string folder, string[] entries)
+    {
         foreach (string name in entries)
         {
             string path = Path.Combine(folder, name);
@@ -221,7 +282,7 @@ public static class Study
                 File.Delete(path);
             }
         }
-        AtomicFile.WriteText(specPath, current.ToJsonString(Indented) + "\n");
+        AtomicFile.WriteText(Path.Combine(folder, StudyFolder.SpecFile), spec.ToJson().ToJsonString(Indented) + "\n");
     }
 
     /// <summary>
