@@ -23,11 +23,11 @@ internal static class CrossEntropyCommand
         shared.AddInput(command, fields: false);
         shared.AddModel(command, prompted: false);
         command.SetAction(r => CommandRunner.Run(() => Run(r.GetValue(model)!.FullName, r.GetValue(input)!.FullName, r.GetValue(stride),
-            ExtractCommand.Format(r.GetValue(shared.Format)!), r.GetValue(shared.TextField)!, Console.Out, r.GetValue(json), shared.Model(r))));
+            ExtractCommand.Format(r.GetValue(shared.Format)!), r.GetValue(shared.TextField)!, Console.Out, r.GetValue(json), shared.Model(r), Console.Error)));
         return command;
     }
 
-    internal static int Run(string folder, string input, int? stride, InputFormat format, string textField, TextWriter o, bool json = false, ModelRun? run = null)
+    internal static int Run(string folder, string input, int? stride, InputFormat format, string textField, TextWriter o, bool json = false, ModelRun? run = null, TextWriter? err = null)
     {
         if (stride is int s0)
         {
@@ -56,7 +56,10 @@ internal static class CrossEntropyCommand
                 }
             }
         }
-        CrossEntropyResult s = CrossEntropy.Score(m, Texts(), stride, threads);
+        var printer = TextProgressPrinter.ForConsole(err ?? TextWriter.Null, total: null,
+            () => reader.TotalBytes == 0 ? 1 : Math.Min(1.0, (double)reader.BytesRead / reader.TotalBytes));
+        CrossEntropyResult s = CrossEntropy.Score(m, Texts(), stride, threads, printer);
+        printer.End();
         CultureInfo inv = CultureInfo.InvariantCulture;
         if (s.Tokens == 0)
         {

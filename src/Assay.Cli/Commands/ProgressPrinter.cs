@@ -1,26 +1,26 @@
 using System.Diagnostics;
 using System.Globalization;
+using Assay.Features;
 using Assay.Output;
 
 namespace Assay.Cli.Commands;
 
 /// <summary>
-/// Progress of a run on stderr: rows done, records read and rejected, tokens/s and an ETA from the share of the input
-/// read. On a terminal one line is redrawn in place; otherwise a plain line is written every interval (and at the end).
+/// One progress line on stderr: on a terminal redrawn in place every half second, otherwise a plain line every
+/// interval; <see cref="End"/> writes the last state. What the line says is the subclass's.
 /// </summary>
-internal sealed class ProgressPrinter(TextWriter err, bool interactive, TimeSpan interval) : IProgress<RunProgress>
+internal abstract class ProgressLine<T>(TextWriter err, bool interactive, TimeSpan interval) : IProgress<T>
+    where T : struct
 {
     private readonly Stopwatch _sinceLine = Stopwatch.StartNew();
-    private double? _firstFraction;
-    private RunProgress? _last;
+    private T? _last;
     private bool _drawn;
 
-    public void Report(RunProgress value)
+    public void Report(T value)
     {
         _last = value;
-        _firstFraction ??= value.InputFraction;
-        TimeSpan every = interactive ? TimeSpan.FromMilliseconds(500) : interval;
-        if (_sinceLine.Elapsed >= every)
+        Started(value);
+        if (_sinceLine.Elapsed >= (interactive ? TimeSpan.FromMilliseconds(500) : interval))
         {
             Write(value);
             _sinceLine.Restart();
@@ -30,7 +30,7 @@ internal sealed class ProgressPrinter(TextWriter err, bool interactive, TimeSpan
     /// <summary>The last state, then a line break on a terminal.</summary>
     public void End()
     {
-        if (_last is RunProgress last)
+        if (_last is T last)
         {
             Write(last);
         }
@@ -40,16 +40,26 @@ internal sealed class ProgressPrinter(TextWriter err, bool interactive, TimeSpan
         }
     }
 
-    private void Write(RunProgress p)
+    /// <summary>Called with every report before the line is written (to remember where this session began).</summary>
+    protected virtual void Started(T value)
     {
-        CultureInfo inv = CultureInfo.InvariantCulture;
-        double seconds = p.Elapsed.TotalSeconds;
-        string rate = seconds > 0 ? string.Create(inv, $"{p.Tokens / seconds:N0} tokens/s") : "";
-        double done = p.InputFraction - (_firstFraction ?? 0);
-        double left = 1 - p.InputFraction;
-        string eta = done > 0 && left > 0 ? "ETA " + Clock(TimeSpan.FromSeconds(seconds * left / done)) : left <= 0 ? "input read" : "ETA …";
-        string line = string.Create(inv,
-            $"assay: {p.Accepted:N0} rows, {p.Read:N0} records read ({p.Rejected:N0} rejected), {p.InputFraction:P0} of input, {rate}, {Clock(p.Elapsed)} elapsed, {eta}");
+    }
+
+    protected abstract string Format(T value);
+
+    protected static string Clock(TimeSpan t) =>
+        string.Create(CultureInfo.InvariantCulture, $"{(int)t.TotalHours}:{t.Minutes:D2}:{t.Seconds:D2}");
+
+    /// <summary>"ETA h:mm:ss" from the share done since this session began, seconds spent and the share left.</summary>
+    protected static string Eta(double doneShare, double leftShare, double seconds) =>
+        doneShare > 0 && leftShare > 0 ? "ETA " + Clock(TimeSpan.FromSeconds(seconds * leftShare / doneShare)) : leftShare <= 0 ? "input read" : "ETA …";
+
+    protected static string Rate(long tokens, TimeSpan elapsed) =>
+        elapsed.TotalSeconds > 0 ? string.Create(CultureInfo.InvariantCulture, $"{tokens / elapsed.TotalSeconds:N0} tokens/s") : "";
+
+    private void Write(T value)
+    {
+        string line = Format(value);
         if (interactive)
         {
             err.Write("\r" + line.PadRight(100));
@@ -60,7 +70,37 @@ internal sealed class ProgressPrinter(TextWriter err, bool interactive, TimeSpan
             err.WriteLine(line);
         }
     }
+}
 
-    private static string Clock(TimeSpan t) =>
-        string.Create(CultureInfo.InvariantCulture, $"{(int)t.TotalHours}:{t.Minutes:D2}:{t.Seconds:D2}");
+/// <summary>
+/// Progress of a run: rows done, records read and rejected, tokens/s and an ETA from the share of the input read.
+/// </summary>
+internal sealed class ProgressPrinter(TextWriter err, bool interactive, TimeSpan interval) : ProgressLine<RunProgress>(err, interactive, interval)
+{
+    private double? _firstFraction;
+
+    protected override void Started(RunProgress value) => _firstFraction ??= value.InputFraction;
+
+    protected override string Format(RunProgress p) => string.Create(CultureInfo.InvariantCulture,
+        $"assay: {p.Accepted:N0} rows, {p.Read:N0} records read ({p.Rejected:N0} rejected), {p.InputFraction:P0} of input, {Rate(p.Tokens, p.Elapsed)}, {Clock(p.Elapsed)} elapsed, {Eta(p.InputFraction - (_firstFraction ?? 0), 1 - p.InputFraction, p.Elapsed.TotalSeconds)}");
+}
+
+/// <summary>
+/// Progress of texts through the model (zero-shot, cross-entropy): texts done of the total (or the share of the input
+/// read, when the total is not known up front), tokens/s and an ETA.
+/// </summary>
+internal sealed class TextProgressPrinter(TextWriter err, bool interactive, TimeSpan interval, long? total, Func<double>? inputFraction = null)
+    : ProgressLine<ExtractionProgress>(err, interactive, interval)
+{
+    /// <summary>A printer on stderr: redrawn on a terminal, a line every 10 s otherwise.</summary>
+    public static TextProgressPrinter ForConsole(TextWriter err, long? total, Func<double>? inputFraction = null) =>
+        new(err, !Console.IsErrorRedirected && ReferenceEquals(err, Console.Error), TimeSpan.FromSeconds(10), total, inputFraction);
+
+    protected override string Format(ExtractionProgress p)
+    {
+        CultureInfo inv = CultureInfo.InvariantCulture;
+        double share = total is long n && n > 0 ? (double)p.Rows / n : inputFraction?.Invoke() ?? 0;
+        string count = total is long t ? string.Create(inv, $"{p.Rows:N0} of {t:N0} texts") : string.Create(inv, $"{p.Rows:N0} texts, {share:P0} of input");
+        return string.Create(inv, $"assay: {count}, {p.Tokens:N0} tokens, {Rate(p.Tokens, p.Elapsed)}, {Clock(p.Elapsed)} elapsed, {Eta(share, 1 - share, p.Elapsed.TotalSeconds)}");
+    }
 }

@@ -35,14 +35,14 @@ internal static class ZeroShotCommand
             InputFields fields = shared.Fields(r, labelRequired: true);
             return Run(r.GetValue(model)!.FullName, r.GetValue(input)!.FullName, r.GetValue(verbalizer)!.FullName,
                 r.GetValue(prompt)!, r.GetValue(full), ExtractCommand.Format(r.GetValue(shared.Format)!), fields.Text, fields.Label, Console.Out,
-                r.GetValue(output)?.FullName, r.GetValue(overwrite), shared.Model(r), fields.IdRequired ? fields.Id : null);
+                r.GetValue(output)?.FullName, r.GetValue(overwrite), shared.Model(r), fields.IdRequired ? fields.Id : null, Console.Error);
         }));
         return command;
     }
 
     internal static int Run(string folder, string input, string verbalizerPath, string prompt, bool fullWords, InputFormat format,
         string textField, string labelField, TextWriter o, string? outFolder = null, bool overwrite = false,
-        ModelRun? run = null, string? idField = null)
+        ModelRun? run = null, string? idField = null, TextWriter? err = null)
     {
         PromptTemplate template = ExtractCommand.Prompt(prompt);
         if (outFolder != null)
@@ -95,10 +95,12 @@ internal static class ZeroShotCommand
         }
         int k = classes.Count;
         var scorer = new ZeroShotScorer(v, classes, fullWords);
-        foreach (FeatureRow f in extractor.Extract(texts))
+        var printer = TextProgressPrinter.ForConsole(err ?? TextWriter.Null, texts.Count);
+        foreach (FeatureRow f in extractor.Extract(texts, printer))
         {
             scorer.Add(f.Values(output), truth[scorer.Rows]);
         }
+        printer.End();
         ClassificationReport score = scorer.Report();
         string majority = labels.GroupBy(l => l, StringComparer.Ordinal).OrderByDescending(g => g.Count()).ThenBy(g => g.Key, StringComparer.Ordinal).First().Key;
         double majorityShare = labels.Count(l => l == majority) / (double)labels.Count;

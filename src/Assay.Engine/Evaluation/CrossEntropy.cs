@@ -30,8 +30,14 @@ public sealed record CrossEntropyResult(long Texts, long Tokens, long Bytes, dou
 /// </summary>
 public static class CrossEntropy
 {
-    /// <exception cref="ArgumentException">The stride is not in 1 … context length. <paramref name="maxThreads"/> bounds the workers (0: all cores); results do not depend on it.</exception>
-    public static CrossEntropyResult Score(LanguageModel model, IEnumerable<string> texts, int? stride = null, int maxThreads = 0)
+    /// <param name="model">The model.</param>
+    /// <param name="texts">The texts, each scored alone.</param>
+    /// <param name="stride">Tokens from one window's start to the next for texts longer than the context (default: the context length).</param>
+    /// <param name="maxThreads">At most this many workers (0: all cores); results do not depend on it.</param>
+    /// <param name="progress">Told after each text: texts scored, tokens run through the model, time since the start.</param>
+    /// <exception cref="ArgumentException">The stride is not in 1 … context length.</exception>
+    public static CrossEntropyResult Score(LanguageModel model, IEnumerable<string> texts, int? stride = null, int maxThreads = 0,
+        IProgress<Features.ExtractionProgress>? progress = null)
     {
         ArgumentNullException.ThrowIfNull(model);
         ArgumentNullException.ThrowIfNull(texts);
@@ -41,7 +47,8 @@ public static class CrossEntropy
         {
             throw new ArgumentException($"stride {step}: expected 1 … {context} (the context length)", nameof(stride));
         }
-        long count = 0, tokens = 0, bytes = 0;
+        long count = 0, tokens = 0, bytes = 0, run = 0;
+        var clock = System.Diagnostics.Stopwatch.StartNew();
         double nats = 0;
         foreach (string text in texts)
         {
@@ -53,6 +60,7 @@ public static class CrossEntropy
             {
                 int end = Math.Min(begin + context, ids.Length);
                 ForwardResult r = model.Forward([ids[begin..end]], new ForwardOptions { Logits = LogitPositions.All, MaxThreads = maxThreads });
+                run += end - begin;
                 for (int target = Math.Max(begin + 1, scoredUpTo); target < end; target++)
                 {
                     nats -= r.LogProbability(0, target - 1 - begin, ids[target]);
@@ -60,6 +68,7 @@ public static class CrossEntropy
                 }
                 scoredUpTo = end;
             }
+            progress?.Report(new Features.ExtractionProgress(count, run, clock.Elapsed));
         }
         return new CrossEntropyResult(count, tokens, bytes, nats);
     }

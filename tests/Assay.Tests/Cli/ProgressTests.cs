@@ -1,0 +1,34 @@
+using Assay.Cli.Commands;
+using Assay.Input;
+using Assay.Tests.Features;
+using Assay.Tests.Output;
+using Assay.Tests.Support;
+
+namespace Assay.Tests.Cli;
+
+/// <summary>The long commands report progress on stderr (texts done, tokens, tokens/s, an ETA), ending on the final count.</summary>
+public sealed class ProgressTests
+{
+    private static readonly string Folder = Checkpoints.Folder(FeatureExtractorTests.Spec);
+
+    [Fact]
+    public void Zero_shot_and_cross_entropy_end_on_their_totals()
+    {
+        using var temp = new TempFolder();
+        string input = ExtractionRunTests.WriteInput(temp, 30);
+        File.WriteAllLines(temp.File("v.txt"), ["0: lamp", "1: salt", "2: bell", "3: oar"]);
+
+        var err = new StringWriter();
+        Assert.Equal(0, ZeroShotCommand.Run(Folder, input, temp.File("v.txt"), "{text} It is a", false, InputFormat.Auto, "text", "label", TextWriter.Null, err: err));
+        string last = err.ToString().TrimEnd().Split('\n')[^1];
+        Assert.StartsWith("assay: 30 of 30 texts, ", last, StringComparison.Ordinal);
+        Assert.Contains(" tokens/s, ", last, StringComparison.Ordinal);
+
+        err = new StringWriter();
+        var o = new StringWriter();
+        Assert.Equal(0, CrossEntropyCommand.Run(Folder, input, null, InputFormat.Auto, "text", o, json: true, err: err));
+        last = err.ToString().TrimEnd().Split('\n')[^1];
+        Assert.StartsWith("assay: 30 texts, 100 % of input, ", last, StringComparison.Ordinal);
+        Assert.EndsWith("input read", last, StringComparison.Ordinal);
+    }
+}
