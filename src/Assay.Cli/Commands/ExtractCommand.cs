@@ -32,11 +32,12 @@ internal static class ExtractCommand
         var overwrite = new Option<bool>("--overwrite") { Description = "Replace a run already in the folder." };
         var strict = new Option<bool>("--strict") { Description = "Stop at the first bad record instead of writing it to rejects.csv." };
         var shard = new Option<string>("--shard") { Description = "k/n: only shard k of n (accepted row i goes to shard i mod n + 1); merge the n folders with assay merge. Default: from SLURM_ARRAY_TASK_ID, SLURM_ARRAY_TASK_MIN and SLURM_ARRAY_TASK_COUNT in a Slurm job array; 1/1 = unsharded." };
+        var yes = new Option<bool>("--yes") { Description = "Go on when the run would write more than 2 GiB of features (the estimate is printed first)." };
         var progressSeconds = new Option<double>("--progress-seconds") { Description = "Seconds between progress lines when stderr is not a terminal.", DefaultValueFactory = _ => 10 };
 
         var command = new Command("extract", "Run the model over every text of an input file and write the requested features to a run folder.")
         {
-            input, output, folder, prompt, features, words, completions, precision, commit, resume, overwrite, strict, shard, progressSeconds,
+            input, output, folder, prompt, features, words, completions, precision, commit, resume, overwrite, strict, shard, yes, progressSeconds,
         };
         shared.AddInput(command, fields: true);
         shared.AddModel(command, prompted: true);
@@ -49,7 +50,7 @@ internal static class ExtractCommand
                 r.GetValue(shared.Format)!, shared.Fields(r),
                 run.Keep, run.LeadingSpace, r.GetValue(precision)!, run.Weights, run.TokenBudget, r.GetValue(commit),
                 run.Threads, r.GetValue(resume), r.GetValue(overwrite), r.GetValue(strict), r.GetValue(progressSeconds),
-                r.GetValue(shard));
+                r.GetValue(shard), r.GetValue(yes));
             using var cancel = new CancellationTokenSource();
             ConsoleCancelEventHandler onCancel = (_, e) =>
             {
@@ -72,7 +73,11 @@ internal static class ExtractCommand
     internal sealed record Request(
         string Model, string Input, string Output, string Prompt, string Features, string? Words, string? Completions,
         string Format, InputFields Fields, string Keep, bool LeadingSpace, string Precision, string Weights, int TokenBudget, int CommitRows,
-        int Threads, bool Resume, bool Overwrite, bool Strict, double ProgressSeconds, string? Shard = null);
+        int Threads, bool Resume, bool Overwrite, bool Strict, double ProgressSeconds, string? Shard = null, bool Yes = false,
+        long ConfirmAboveBytes = ConfirmAbove);
+
+    /// <summary>Feature bytes above which a run asks for --yes.</summary>
+    internal const long ConfirmAbove = 2L << 30;
 
     internal static int Run(Request q, TextWriter o, TextWriter err, CancellationToken cancellationToken)
     {
@@ -118,6 +123,8 @@ internal static class ExtractCommand
             CommitRows = q.CommitRows,
             Shard = shard,
         };
+
+        CheckSize(ExtractionRun.Estimate(model, q.Input, options), q, err);
 
         var printer = new ProgressPrinter(err, interactive: !Console.IsErrorRedirected && ReferenceEquals(err, Console.Error),
             TimeSpan.FromSeconds(Math.Max(0.1, q.ProgressSeconds)));
@@ -186,6 +193,54 @@ internal static class ExtractCommand
             $"assay: shard {shard} from the Slurm job array (task {task}, first {first}, {tasks} tasks); pass --shard 1/1 to run unsharded"));
         return shard;
     }
+
+    /// <summary>Says what a large run will write; refuses more than the threshold without --yes; warns when the disk looks too small.</summary>
+    private static void CheckSize(RunEstimate e, Request q, TextWriter err)
+    {
+        CultureInfo inv = CultureInfo.InvariantCulture;
+        string total = Size(e.Bytes);
+        if (e.Bytes >= q.ConfirmAboveBytes / 32)
+        {
+            // Said for runs large enough to matter (64 MiB and up by default), so a small run's refusal stays one line.
+            err.WriteLine(string.Create(inv, $"assay: about {e.Rows:N0} rows × {Size(e.BytesPerRow)} = {total} of features ({e.LargestOutput.Name}: {Size(e.LargestOutput.Bytes)} a row)"));
+        }
+        if (e.Bytes > q.ConfirmAboveBytes && !q.Yes)
+        {
+            throw new ArgumentException(string.Create(inv,
+                $"the run would write about {total} ({e.LargestOutput.Name} takes {Size(e.LargestOutput.Bytes)} a row); pass --yes to go on, or ask for less (topk:K instead of nextword, --precision float16)"));
+        }
+        long free = FreeBytes(q.Output);
+        if (free >= 0 && free < e.Bytes)
+        {
+            err.WriteLine($"assay: the disk of {q.Output} has {Size(free)} free and the run would write about {total}; if it fills, the run stops with what it committed and goes on with --resume");
+        }
+    }
+
+    /// <summary>Free bytes of the file system that holds <paramref name="folder"/> (or its nearest existing parent), or −1.</summary>
+    private static long FreeBytes(string folder)
+    {
+        string? existing = Path.GetFullPath(folder);
+        while (existing != null && !Directory.Exists(existing))
+        {
+            existing = Path.GetDirectoryName(existing);
+        }
+        if (existing == null)
+        {
+            return -1;
+        }
+        // The mount whose root is the longest prefix of the folder holds it.
+        DriveInfo? drive = DriveInfo.GetDrives().Where(d => d.IsReady && existing.StartsWith(d.RootDirectory.FullName, StringComparison.Ordinal))
+            .OrderByDescending(d => d.RootDirectory.FullName.Length).FirstOrDefault();
+        return drive?.AvailableFreeSpace ?? -1;
+    }
+
+    private static string Size(long bytes) => bytes switch
+    {
+        >= 1L << 30 => string.Create(CultureInfo.InvariantCulture, $"{bytes / (double)(1L << 30):F1} GiB"),
+        >= 1L << 20 => string.Create(CultureInfo.InvariantCulture, $"{bytes / (double)(1L << 20):F1} MiB"),
+        >= 1L << 10 => string.Create(CultureInfo.InvariantCulture, $"{bytes / 1024.0:F1} KiB"),
+        _ => string.Create(CultureInfo.InvariantCulture, $"{bytes} bytes"),
+    };
 
     /// <summary>Refuses a count below 1, naming the option.</summary>
     internal static void Positive(string option, int value)

@@ -23,6 +23,36 @@ public static class ExtractionRun
     /// <summary>2: values spelled as on the command line (jsonl, head), JSON written unescaped (&lt;f4, +).</summary>
     private const int FormatVersion = 2;
 
+    /// <summary>What an extraction of <paramref name="inputPath"/> with <paramref name="options"/> will write (see <see cref="RunEstimate"/>).</summary>
+    /// <exception cref="ArgumentException">The options do not fit the model (as <see cref="Execute"/> would say).</exception>
+    public static RunEstimate Estimate(LanguageModel model, string inputPath, RunOptions options)
+    {
+        ArgumentNullException.ThrowIfNull(model);
+        ArgumentNullException.ThrowIfNull(inputPath);
+        ArgumentNullException.ThrowIfNull(options);
+        var extractor = new FeatureExtractor(model, options.Extraction);
+        OutputFile[] outputs = [.. extractor.Outputs.Select(o => new OutputFile(o, options.Precision))];
+        long[] bytes = [.. outputs.Select(o => (long)o.Output.Width * NpyFormat.ElementBytes(o.Descr))];
+        int largest = Array.IndexOf(bytes, bytes.Max());
+        long lines = 0;
+        bool endsInLineBreak = true;
+        using (var file = new FileStream(inputPath, FileMode.Open, FileAccess.Read, FileShare.Read, 1 << 16, FileOptions.SequentialScan))
+        {
+            byte[] buffer = new byte[1 << 16];
+            int n;
+            while ((n = file.Read(buffer)) > 0)
+            {
+                lines += buffer.AsSpan(0, n).Count((byte)'\n');
+                endsInLineBreak = buffer[n - 1] == '\n';
+            }
+        }
+        lines += endsInLineBreak ? 0 : 1;
+        InputFormat format = options.Format == InputFormat.Auto ? TextInputReader.FormatOf(inputPath) : options.Format;
+        long records = Math.Max(0, lines - (format is InputFormat.Csv or InputFormat.Tsv ? 1 : 0));
+        long rows = options.Shard is { } shard ? shard.RowsOf(records) : records;
+        return new RunEstimate(rows, bytes.Sum(), (outputs[largest].FileName, bytes[largest]));
+    }
+
     /// <summary>Runs (or resumes) an extraction of <paramref name="inputPath"/> into <paramref name="outputFolder"/>.</summary>
     /// <exception cref="RunFolderException">The folder holds a finished run (and neither Resume nor Overwrite is set),
     /// an unfinished one (without Resume or Overwrite), a run with other settings, or files of something else.</exception>

@@ -50,6 +50,24 @@ public sealed class ExtractCommandTests
     }
 
     [Fact]
+    public void A_run_says_what_it_will_write_and_a_large_one_needs_yes()
+    {
+        using var temp = new TempFolder();
+        string input = ExtractionRunTests.WriteInput(temp, 40);   // 42 lines: 40 good records and 2 bad ones
+        var big = Request(input, temp.File("run"), "nextword,cmean") with { ConfirmAboveBytes = 10_000 };
+        var e = Assert.Throws<ArgumentException>(() => ExtractCommand.Run(big, TextWriter.Null, TextWriter.Null, CancellationToken.None));
+        Assert.Contains("the run would write about 57.1 KiB (nextword.npy takes 1.2 KiB a row); pass --yes", e.Message, StringComparison.Ordinal);
+        Assert.False(Directory.Exists(temp.File("run")));
+
+        var err = new StringWriter();
+        Assert.Equal(0, ExtractCommand.Run(big with { Yes = true }, TextWriter.Null, err, CancellationToken.None));
+        // 42 lines × (300 + 48 floats): an upper bound of what was written (40 rows), stated before the run.
+        Assert.Contains("assay: about 42 rows × 1.4 KiB = 57.1 KiB of features (nextword.npy: 1.2 KiB a row)", err.ToString(), StringComparison.Ordinal);
+        long written = Directory.GetFiles(temp.File("run"), "*.npy").Sum(f => new FileInfo(f).Length - 128);
+        Assert.Equal(40L * (300 + 48) * 4, written);
+    }
+
+    [Fact]
     public void Bfloat16_weights_are_recorded_and_a_run_cannot_switch_them()
     {
         using var temp = new TempFolder();
