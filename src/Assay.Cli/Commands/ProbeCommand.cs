@@ -102,7 +102,9 @@ internal static class ProbeCommand
         if (trainRun != null)
         {
             RunFeatures data = RunFeatures.Load(trainRun, stem);
-            probe = LinearProbe.Fit(data.Values, data.Rows, data.Width, data.Labels, fitOptions);
+            var search = SearchProgressPrinter.ForConsole(err);
+            probe = LinearProbe.Fit(data.Values, data.Rows, data.Width, data.Labels, fitOptions, search);
+            search.End();
             SavedProbe.Create(probe, stem, data.Width, trainRecord!).Save(Path.Combine(output, ReportFolder.ProbeFile));
             trainLabels = [.. data.Labels];
             report["train"] = new JsonObject { ["run"] = trainRun, ["rows"] = data.Rows, ["width"] = data.Width };

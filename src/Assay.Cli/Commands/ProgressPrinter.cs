@@ -51,8 +51,8 @@ internal abstract class ProgressLine<T>(TextWriter err, bool interactive, TimeSp
         string.Create(CultureInfo.InvariantCulture, $"{(int)t.TotalHours}:{t.Minutes:D2}:{t.Seconds:D2}");
 
     /// <summary>"ETA h:mm:ss" from the share done since this session began, seconds spent and the share left.</summary>
-    protected static string Eta(double doneShare, double leftShare, double seconds) =>
-        doneShare > 0 && leftShare > 0 ? "ETA " + Clock(TimeSpan.FromSeconds(seconds * leftShare / doneShare)) : leftShare <= 0 ? "input read" : "ETA …";
+    protected static string Eta(double doneShare, double leftShare, double seconds, string finished = "input read") =>
+        doneShare > 0 && leftShare > 0 ? "ETA " + Clock(TimeSpan.FromSeconds(seconds * leftShare / doneShare)) : leftShare <= 0 ? finished : "ETA …";
 
     protected static string Rate(long tokens, TimeSpan elapsed) =>
         elapsed.TotalSeconds > 0 ? string.Create(CultureInfo.InvariantCulture, $"{tokens / elapsed.TotalSeconds:N0} tokens/s") : "";
@@ -102,5 +102,21 @@ internal sealed class TextProgressPrinter(TextWriter err, bool interactive, Time
         double share = total is long n && n > 0 ? (double)p.Rows / n : inputFraction?.Invoke() ?? 0;
         string count = total is long t ? string.Create(inv, $"{p.Rows:N0} of {t:N0} texts") : string.Create(inv, $"{p.Rows:N0} texts, {share:P0} of input");
         return string.Create(inv, $"assay: {count}, {p.Tokens:N0} tokens, {Rate(p.Tokens, p.Elapsed)}, {Clock(p.Elapsed)} elapsed, {Eta(share, 1 - share, p.Elapsed.TotalSeconds)}");
+    }
+}
+
+/// <summary>Progress of a probe's search for C: values done of all, the last C and its cross-validated log loss, an ETA.</summary>
+internal sealed class SearchProgressPrinter(TextWriter err, bool interactive, TimeSpan interval)
+    : ProgressLine<Assay.Evaluation.ProbeSearchProgress>(err, interactive, interval)
+{
+    /// <summary>A printer on stderr: redrawn on a terminal, a line every 10 s otherwise.</summary>
+    public static SearchProgressPrinter ForConsole(TextWriter err) =>
+        new(err, !Console.IsErrorRedirected && ReferenceEquals(err, Console.Error), TimeSpan.FromSeconds(10));
+
+    protected override string Format(Assay.Evaluation.ProbeSearchProgress p)
+    {
+        double share = p.Count == 0 ? 1 : (double)p.Done / p.Count;
+        return string.Create(CultureInfo.InvariantCulture,
+            $"assay: C {p.Done} of {p.Count} cross-validated (C = {p.C:G4}: log loss {p.LogLoss:F4}), {Clock(p.Elapsed)} elapsed, {Eta(share, 1 - share, p.Elapsed.TotalSeconds, "refitting on all rows")}");
     }
 }

@@ -31,4 +31,18 @@ public sealed class ProgressTests
         Assert.StartsWith("assay: 30 texts, 100 % of input, ", last, StringComparison.Ordinal);
         Assert.EndsWith("input read", last, StringComparison.Ordinal);
     }
+
+    [Fact]
+    public void The_probe_reports_its_search_for_c()
+    {
+        using var temp = new TempFolder();
+        var options = new Assay.Output.RunOptions();
+        Assay.Model.LanguageModel m = Assay.Model.LanguageModel.Open(Folder);
+        Assay.Output.ExtractionRun.Execute(m, ExtractionRunTests.WriteInput(temp, 60, "train.jsonl"), temp.File("train"), options);
+        var err = new StringWriter();
+        Assert.Equal(0, ProbeCommand.Run(temp.File("train"), null, null, "cmean", temp.File("p"), 3, "0.1,1,10", TextWriter.Null, err: err));
+        string last = err.ToString().TrimEnd().Split('\n')[^1];
+        Assert.StartsWith("assay: C 3 of 3 cross-validated (C = 10: log loss ", last, StringComparison.Ordinal);
+        Assert.EndsWith("refitting on all rows", last, StringComparison.Ordinal);
+    }
 }

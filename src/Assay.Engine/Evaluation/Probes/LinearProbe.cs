@@ -36,6 +36,14 @@ public sealed record ProbeOptions
     }
 }
 
+/// <summary>How far a probe's search for C has come: values of C done (each one a full cross-validation) of all, the last one and its score.</summary>
+/// <param name="Done">Values of C cross-validated so far.</param>
+/// <param name="Count">Values of C to try.</param>
+/// <param name="C">The last one done.</param>
+/// <param name="LogLoss">Its mean held-out log loss.</param>
+/// <param name="Elapsed">Time since the search began.</param>
+public readonly record struct ProbeSearchProgress(int Done, int Count, double C, double LogLoss, TimeSpan Elapsed);
+
 /// <summary>
 /// A linear probe: features standardized with the training rows' mean and standard deviation (population, as
 /// scikit-learn's StandardScaler; constant features are left centred), then multinomial L2 logistic regression whose
@@ -72,7 +80,8 @@ public sealed class LinearProbe
 
     /// <summary>Fits a probe on n rows of d features (row-major) and their labels.</summary>
     /// <exception cref="ArgumentException">Shapes disagree, fewer than two classes, or a class has fewer rows than folds.</exception>
-    public static LinearProbe Fit(double[] x, int n, int d, IReadOnlyList<string> labels, ProbeOptions? options = null)
+    public static LinearProbe Fit(double[] x, int n, int d, IReadOnlyList<string> labels, ProbeOptions? options = null,
+        IProgress<ProbeSearchProgress>? progress = null)
     {
         options ??= new ProbeOptions();
         options.Validate();
@@ -97,6 +106,7 @@ public sealed class LinearProbe
         double[] z = Standardize(x, n, d, mean, scale);
         int[] fold = Folds(y, classes.Length, options.Folds, options.Seed);
         var search = new List<(double C, double LogLoss, double Accuracy)>();
+        var clock = System.Diagnostics.Stopwatch.StartNew();
         foreach (double c in options.InverseRegularizations)
         {
             double loss = 0;
@@ -123,6 +133,7 @@ public sealed class LinearProbe
                 }
             }
             search.Add((c, loss / n, (double)correct / n));
+            progress?.Report(new ProbeSearchProgress(search.Count, options.InverseRegularizations.Count, c, loss / n, clock.Elapsed));
         }
         double best = search.OrderBy(s => s.LogLoss).ThenBy(s => s.C).First().C;
         return new LinearProbe(classes, mean, scale, LogisticRegression.Fit(z, n, d, y, classes.Length, best), best, search);
