@@ -26,11 +26,6 @@ internal static class CommandRunner
             Console.Error.WriteLine($"assay: {Message(e)}");
             return BadInput;
         }
-        catch (InvalidOperationException e) when (e.Message.StartsWith(Assay.Kernels.KernelSelector.EnvironmentVariable, StringComparison.Ordinal))
-        {
-            Console.Error.WriteLine($"assay: {e.Message}");
-            return BadInput;
-        }
     }
 
     /// <summary>The message without .NET's " (Parameter 'name')" suffix, which names code, not the user's input.</summary>

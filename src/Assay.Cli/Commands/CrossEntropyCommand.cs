@@ -34,8 +34,8 @@ internal static class CrossEntropyCommand
             ExtractCommand.Positive("--stride", s0);
         }
         run ??= new ModelRun();
-        int threads = run.CheckedThreads;
-        LanguageModel m = LanguageModel.Open(folder, ModelOption.ParseWeights(run.Weights));
+        LanguageModel m = LanguageModel.Open(folder, run.Validate());
+        int threads = run.Threads;
         if (stride > m.Config.ContextLength)
         {
             throw new ArgumentException($"--stride {stride}: expected 1 … {m.Config.ContextLength} (the context length)");

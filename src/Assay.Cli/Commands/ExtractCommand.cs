@@ -82,18 +82,14 @@ internal static class ExtractCommand
     internal static int Run(Request q, TextWriter o, TextWriter err, CancellationToken cancellationToken)
     {
         PromptTemplate template = Prompt(q.Prompt);
-        Positive("--token-budget", q.TokenBudget);
+        var run = new ModelRun(q.Weights, q.Threads, q.TokenBudget, q.Keep, q.LeadingSpace);
+        WeightPrecision weights = run.Validate();
         Positive("--commit-rows", q.CommitRows);
-        if (q.Threads < 0)
-        {
-            throw new ArgumentException(string.Create(CultureInfo.InvariantCulture, $"--threads {q.Threads}: expected 0 (all cores) or a positive count"));
-        }
         if (!(q.ProgressSeconds > 0 && double.IsFinite(q.ProgressSeconds)))
         {
             throw new ArgumentException(string.Create(CultureInfo.InvariantCulture, $"--progress-seconds {q.ProgressSeconds}: expected a positive number of seconds"));
         }
         InputFormat format = Format(q.Format);
-        TextTruncation truncation = Spellings.Parse<TextTruncation>("--keep", q.Keep);
         FeaturePrecision precision = Spellings.Parse<FeaturePrecision>("--precision", q.Precision);
         if (!File.Exists(q.Input))
         {
@@ -101,19 +97,10 @@ internal static class ExtractCommand
         }
 
         RunShard? shard = Shard(q.Shard, Environment.GetEnvironmentVariable, err);
-        WeightPrecision weights = ModelOption.ParseWeights(q.Weights);
         LanguageModel model = LanguageModel.Open(q.Model, weights);
         var options = new RunOptions
         {
-            Extraction = new ExtractionOptions
-            {
-                Prompt = template,
-                Features = FeatureOption.Parse(q.Features, model.Config.Layers, q.Words, q.Completions),
-                Truncation = truncation,
-                LeadingSpace = q.LeadingSpace,
-                TokenBudget = q.TokenBudget,
-                MaxThreads = q.Threads,
-            },
+            Extraction = run.Extraction(template, FeatureOption.Parse(q.Features, model.Config.Layers, q.Words, q.Completions)),
             Format = format,
             Fields = q.Fields,
             Precision = precision,

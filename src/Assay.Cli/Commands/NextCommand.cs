@@ -33,8 +33,8 @@ internal static class NextCommand
             throw new ArgumentException($"--top {top}: expected a positive number");
         }
         run ??= new ModelRun();
-        int threads = run.CheckedThreads;
-        LanguageModel model = LanguageModel.Open(folder, ModelOption.ParseWeights(run.Weights));
+        LanguageModel model = LanguageModel.Open(folder, run.Validate());
+        int threads = run.Threads;
         if (top > model.Config.VocabularySize)
         {
             throw new ArgumentException($"--top {top}: expected 1 … {model.Config.VocabularySize} (the vocabulary)");

@@ -1,5 +1,4 @@
 using System.Globalization;
-using System.Text.Json;
 using System.Text.Json.Nodes;
 using CsvHelper;
 
@@ -8,8 +7,6 @@ namespace Assay.Cli.Commands;
 /// <summary>The files of a report folder that the probe and zero-shot commands both write.</summary>
 internal static class Predictions
 {
-    private static readonly JsonSerializerOptions Indented = new() { WriteIndented = true, Encoder = System.Text.Encodings.Web.JavaScriptEncoder.UnsafeRelaxedJsonEscaping };
-
     /// <summary>predictions.csv: id, label, predicted class, then p_CLASS for every class (round-trip precision).</summary>
     public static void Write(string path, IReadOnlyList<string> ids, IReadOnlyList<string> labels, IReadOnlyList<string> classes, double[] p)
     {
@@ -39,5 +36,5 @@ internal static class Predictions
     }
 
     /// <summary>A report's JSON, indented and unescaped.</summary>
-    public static void WriteJson(string path, JsonObject json) => File.WriteAllText(path, json.ToJsonString(Indented) + "\n");
+    public static void WriteJson(string path, JsonObject json) => File.WriteAllText(path, json.ToJsonString(JsonOutput.Options) + "\n");
 }

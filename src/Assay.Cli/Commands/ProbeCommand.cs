@@ -78,8 +78,9 @@ internal static class ProbeCommand
         SavedProbe? saved = savedProbe == null ? null : SavedProbe.Load(savedProbe);
         if (saved != null)
         {
-            RunFeatures shape = RunFeatures.Load(testRun!, stem);
-            difference = saved.Mismatch(stem, shape.Width, testRecord!);
+            // The width from the record: the features themselves are read once, below.
+            int width = testRecord!.Files.First(f => f.File == stem + ".npy").Width;
+            difference = saved.Mismatch(stem, width, testRecord);
             bool runsOnly = difference != null && difference.StartsWith("the probe's training run", StringComparison.Ordinal);
             if (difference != null && !(runsOnly && allowDifferentRuns))
             {

@@ -1,6 +1,7 @@
 using System.CommandLine;
 using Assay.Features;
 using Assay.Input;
+using Assay.Weights;
 
 namespace Assay.Cli.Commands;
 
@@ -8,24 +9,28 @@ namespace Assay.Cli.Commands;
 /// commands that fill a prompt --token-budget, --keep and --no-leading-space.</summary>
 internal sealed record ModelRun(string Weights = "float32", int Threads = 0, int TokenBudget = 4096, string Keep = "head", bool LeadingSpace = true)
 {
-    /// <summary>The extraction options these give, validated with the options named.</summary>
-    public ExtractionOptions Extraction(PromptTemplate prompt, IReadOnlyList<FeatureRequest> features)
+    /// <summary>Checks every value, naming its option, before anything is opened; gives the weight storage.</summary>
+    public WeightPrecision Validate()
     {
         ExtractCommand.Positive("--token-budget", TokenBudget);
-        return new ExtractionOptions
+        if (Threads < 0)
         {
-            Prompt = prompt,
-            Features = features,
-            Truncation = Spellings.Parse<TextTruncation>("--keep", Keep),
-            LeadingSpace = LeadingSpace,
-            TokenBudget = TokenBudget,
-            MaxThreads = CheckedThreads,
-        };
+            throw new ArgumentException(string.Create(System.Globalization.CultureInfo.InvariantCulture, $"--threads {Threads}: expected 0 (all cores) or a positive count"));
+        }
+        _ = Spellings.Parse<TextTruncation>("--keep", Keep);
+        return ModelOption.ParseWeights(Weights);
     }
 
-    /// <summary>--threads, refused below 0.</summary>
-    public int CheckedThreads => Threads >= 0 ? Threads
-        : throw new ArgumentException(string.Create(System.Globalization.CultureInfo.InvariantCulture, $"--threads {Threads}: expected 0 (all cores) or a positive count"));
+    /// <summary>The extraction options these give (after <see cref="Validate"/>).</summary>
+    public ExtractionOptions Extraction(PromptTemplate prompt, IReadOnlyList<FeatureRequest> features) => new()
+    {
+        Prompt = prompt,
+        Features = features,
+        Truncation = Spellings.Parse<TextTruncation>("--keep", Keep),
+        LeadingSpace = LeadingSpace,
+        TokenBudget = TokenBudget,
+        MaxThreads = Threads,
+    };
 }
 
 /// <summary>The options every model command shares, made once so they read and default alike everywhere.</summary>
@@ -74,7 +79,14 @@ internal sealed class SharedOptions
         }
     }
 
-    public ModelRun Model(ParseResult r) => new(r.GetValue(Weights)!, r.GetValue(Threads), r.GetValue(TokenBudget), r.GetValue(Keep)!, !r.GetValue(NoLeadingSpace));
+    /// <summary>The command's values; the prompt options keep their defaults on commands that do not take them.</summary>
+    public ModelRun Model(ParseResult r)
+    {
+        var run = new ModelRun(r.GetValue(Weights)!, r.GetValue(Threads));
+        return r.CommandResult.Command.Options.Contains(TokenBudget)
+            ? run with { TokenBudget = r.GetValue(TokenBudget), Keep = r.GetValue(Keep)!, LeadingSpace = !r.GetValue(NoLeadingSpace) }
+            : run;
+    }
 
     /// <summary>The input fields; a label is required where <paramref name="labelRequired"/>, else only when --label-field is given.</summary>
     public InputFields Fields(ParseResult r, bool labelRequired = false)

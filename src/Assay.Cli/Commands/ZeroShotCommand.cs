@@ -51,9 +51,10 @@ internal static class ZeroShotCommand
             ReportFolder.CheckClaimable(outFolder, overwrite);
         }
         run ??= new ModelRun();
+        Assay.Weights.WeightPrecision weights = run.Validate();
         Verbalizer v = Verbalizer.Load(verbalizerPath);
         ExtractionOptions options = run.Extraction(template, [new WordListFeature(v.AllWords, fullWords)]);
-        LanguageModel m = LanguageModel.Open(folder, ModelOption.ParseWeights(run.Weights));
+        LanguageModel m = LanguageModel.Open(folder, weights);
         var extractor = new FeatureExtractor(m, options);
         int output = fullWords ? 1 : 0;
         var classes = new LabelIndex(v.Labels);

@@ -60,15 +60,29 @@ public sealed record RunFeatures(double[] Values, int Rows, int Width, IReadOnly
         int rows = checked((int)rowCount);
         ReadOnlySpan<byte> data = bytes.AsSpan(offset);
         double[] values = new double[(long)rows * width];
-        for (int i = 0; i < values.Length; i++)
+        // The dtype is decided once; the loops convert without looking at it again.
+        switch (descr)
         {
-            values[i] = descr switch
-            {
-                NpyFormat.Float32 => BinaryPrimitives.ReadSingleLittleEndian(data[(i * 4)..]),
-                NpyFormat.Float16 => (double)BinaryPrimitives.ReadHalfLittleEndian(data[(i * 2)..]),
-                NpyFormat.Int32 => BinaryPrimitives.ReadInt32LittleEndian(data[(i * 4)..]),
-                _ => throw new RunFolderException(runFolder, $"{path}: dtype {descr} is not one extract writes"),
-            };
+            case NpyFormat.Float32:
+                for (int i = 0; i < values.Length; i++)
+                {
+                    values[i] = BinaryPrimitives.ReadSingleLittleEndian(data[(i * 4)..]);
+                }
+                break;
+            case NpyFormat.Float16:
+                for (int i = 0; i < values.Length; i++)
+                {
+                    values[i] = (double)BinaryPrimitives.ReadHalfLittleEndian(data[(i * 2)..]);
+                }
+                break;
+            case NpyFormat.Int32:
+                for (int i = 0; i < values.Length; i++)
+                {
+                    values[i] = BinaryPrimitives.ReadInt32LittleEndian(data[(i * 4)..]);
+                }
+                break;
+            default:
+                throw new RunFolderException(runFolder, $"{path}: dtype {descr} is not one extract writes");
         }
 
         (List<string> ids, List<string> labels) = RunTable.IdsAndLabels(runFolder);

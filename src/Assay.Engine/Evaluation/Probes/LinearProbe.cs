@@ -162,11 +162,27 @@ public sealed class LinearProbe
 
     /// <summary>Reads a probe saved with <see cref="ToJson"/>.</summary>
     /// <exception cref="ArgumentException">The file is not such a probe (the message names it).</exception>
-    public static LinearProbe FromJson(string path)
+    public static LinearProbe FromJson(string path) => FromJson(path, Parse(path));
+
+    /// <summary>The probe file's JSON object.</summary>
+    /// <exception cref="ArgumentException">Not a JSON object (the message names the file).</exception>
+    internal static JsonObject Parse(string path)
     {
         try
         {
-            JsonObject o = JsonNode.Parse(File.ReadAllBytes(path))!.AsObject();
+            return JsonNode.Parse(File.ReadAllBytes(path))!.AsObject();
+        }
+        catch (Exception e) when (e is System.Text.Json.JsonException or InvalidOperationException or NullReferenceException)
+        {
+            throw new ArgumentException($"{path}: not a probe written by assay probe ({e.Message})", e);
+        }
+    }
+
+    /// <summary>The probe in <paramref name="o"/>, read from <paramref name="path"/>.</summary>
+    internal static LinearProbe FromJson(string path, JsonObject o)
+    {
+        try
+        {
             string[] classes = [.. o["classes"]!.AsArray().Select(c => c!.GetValue<string>())];
             double[] mean = [.. o["mean"]!.AsArray().Select(v => v!.GetValue<double>())];
             double[] scale = [.. o["scale"]!.AsArray().Select(v => v!.GetValue<double>())];

@@ -52,8 +52,8 @@ public sealed class SavedProbe
     /// <exception cref="ArgumentException">Not such a file, or one written before probes recorded their feature and run.</exception>
     public static SavedProbe Load(string path)
     {
-        LinearProbe probe = LinearProbe.FromJson(path);
-        JsonObject o = JsonNode.Parse(File.ReadAllBytes(path))!.AsObject();
+        JsonObject o = LinearProbe.Parse(path);
+        LinearProbe probe = LinearProbe.FromJson(path, o);
         if (o["feature"] is not JsonValue feature || o["width"] is not JsonValue width || o["run_settings"] is not JsonObject settings)
         {
             throw new ArgumentException($"{path}: the probe does not record the feature and run it was fitted on (written by an earlier assay); fit it again");

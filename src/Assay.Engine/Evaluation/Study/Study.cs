@@ -119,9 +119,11 @@ public static class Study
             }
             foreach (string feature in spec.Features.Where(f => f.StartsWith(HiddenStateFeature.Name, StringComparison.Ordinal)))
             {
-                FeatureRequest request = FeatureSpec.Parse(feature, config.Layers).Single();
-                int layer = ((HiddenStateFeature)request).Layer;
-                if (layer < -(config.Layers + 1) || layer > config.Layers)
+                try
+                {
+                    HiddenStateFeature.ResolveLayer(((HiddenStateFeature)FeatureSpec.Parse(feature, config.Layers).Single()).Layer, config.Layers);
+                }
+                catch (ArgumentException)
                 {
                     throw new StudyException(spec.Path, string.Create(CultureInfo.InvariantCulture, $"features: {feature}: model \"{name}\" ({folder}) has layers 0 … {config.Layers}"));
                 }
@@ -223,6 +225,7 @@ public static class Study
             throw new StudyException(testRun, $"test label \"{unknown}\" is not in the verbalizer");
         }
         var scorer = new ZeroShotScorer(verbalizer, classes, logLikelihoods: false);
+        int[] truth = classes.Indices(test.Labels);
         float[] row = new float[test.Width];
         for (int i = 0; i < test.Rows; i++)
         {
@@ -230,7 +233,7 @@ public static class Study
             {
                 row[j] = (float)test.Values[(i * test.Width) + j];
             }
-            scorer.Add(row, classes.Indices([test.Labels[i]])[0]);
+            scorer.Add(row, truth[i]);
         }
         return new StudyCell(model, prompt, "zero-shot", 0, 0, null, scorer.Report());
     }
