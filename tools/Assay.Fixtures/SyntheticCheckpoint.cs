@@ -77,28 +77,18 @@ public static class SyntheticCheckpoint
         using var json = new Utf8JsonWriter(stream, new JsonWriterOptions { Indented = true });
         json.WriteStartObject();
         json.WriteString("model_type", "gpt2");
-        json.WriteStartArray("architectures");
-        json.WriteStringValue("GPT2LMHeadModel");
-        json.WriteEndArray();
         json.WriteNumber("n_embd", spec.Width);
         json.WriteNumber("n_layer", spec.Layers);
         json.WriteNumber("n_head", spec.Heads);
         json.WriteNumber("n_positions", spec.Context);
-        json.WriteNumber("n_ctx", spec.Context);
         json.WriteNumber("vocab_size", spec.Vocabulary);
         if (spec.Inner is int inner)
         {
             json.WriteNumber("n_inner", inner);
         }
-        else
-        {
-            json.WriteNull("n_inner");
-        }
         json.WriteNumber("layer_norm_epsilon", 1e-5);
         json.WriteString("activation_function", spec.Activation);
         json.WriteBoolean("tie_word_embeddings", spec.Tied);
-        json.WriteNumber("bos_token_id", spec.Vocabulary >= 50257 ? 50256 : 256);
-        json.WriteNumber("eos_token_id", spec.Vocabulary >= 50257 ? 50256 : 256);
         json.WriteEndObject();
     }
 
