@@ -114,7 +114,6 @@ internal static class StudyReport
     {
         var plot = new Plot();
         plot.Font.Set(FontName);
-        var palette = new ScottPlot.Palettes.Category10();
         int models = r.Models.Count;
         var ticks = new List<Tick>();
         for (int f = 0; f < r.Spec.Features.Count; f++)
@@ -128,7 +127,9 @@ internal static class StudyReport
                 {
                     Position = groupStart + m,
                     Value = c.Score.Accuracy * 100,
-                    FillColor = palette.GetColor(m),
+                    FillColor = PlotStyle.Colour(m),
+                    LineColor = Colors.Black,
+                    LineWidth = 0.5f,
                 };
                 plot.Add.Bar(bar);
                 var interval = new ScottPlot.Plottables.ErrorBar([bar.Position], [bar.Value], [0.0], [0.0],
@@ -144,7 +145,7 @@ internal static class StudyReport
             plot.Legend.ManualItems.Add(new LegendItem
             {
                 LabelText = string.Create(Inv, $"{r.Models[m].Name} (cross-entropy {r.Models[m].CrossEntropy.NatsPerToken:F2})"),
-                FillColor = palette.GetColor(m),
+                FillColor = PlotStyle.Colour(m),
             });
         }
         var chance = plot.Add.HorizontalLine(100.0 / r.Classes.Count);
@@ -169,13 +170,13 @@ internal static class StudyReport
     {
         var plot = new Plot();
         plot.Font.Set(FontName);
-        var palette = new ScottPlot.Palettes.Category10();
         int i = 0;
         foreach (StudyCurve c in r.Curves.Where(c => c.Prompt == prompt))
         {
-            Color color = palette.GetColor(i++);
+            Color color = PlotStyle.Colour(i);
             var points = plot.Add.ScatterPoints(c.Points.Select(p => p.CrossEntropy).ToArray(), c.Points.Select(p => p.LogLoss).ToArray());
             points.Color = color;
+            points.MarkerShape = PlotStyle.Marker(i++);
             points.MarkerSize = 9;
             points.LegendText = string.Create(Inv, $"{c.Feature}: {c.Fit.A:F2} + {c.Fit.B:F2}·√(x − {c.Fit.Shift:F2}), R² {c.Fit.RSquared:F3}");
             double low = c.Points.Min(p => p.CrossEntropy), high = c.Points.Max(p => p.CrossEntropy);
