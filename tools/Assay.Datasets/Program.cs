@@ -1,5 +1,6 @@
 using System.Diagnostics;
 using System.Globalization;
+using System.Security.Cryptography;
 using System.Text;
 using System.Text.Json;
 using Assay.Datasets;
@@ -25,25 +26,26 @@ string source = args.Length == 4 ? args[3] : WordNetNouns.DefaultPath;
 Directory.CreateDirectory(output);
 var counts = new SortedDictionary<string, int[]>(StringComparer.Ordinal);   // label → [train, test]
 int trainingText = 0;
-using (var train = new StreamWriter(Path.Combine(output, "train.jsonl")))
-using (var test = new StreamWriter(Path.Combine(output, "test.jsonl")))
+var wordnetTrain = new List<(string Id, string Line)>();
+var wordnetTest = new List<(string Id, string Line)>();
+foreach (NounSynset s in WordNetNouns.Read(source))
 {
-    foreach (NounSynset s in WordNetNouns.Read(source))
+    (bool evaluation, bool isTest) = WordNetNouns.Split(s.Offset);
+    if (!evaluation)
     {
-        (bool evaluation, bool isTest) = WordNetNouns.Split(s.Offset);
-        if (!evaluation)
-        {
-            trainingText++;   // the training-text half: `assay-datasets corpus` writes it for the trainer
-            continue;
-        }
-        (isTest ? test : train).WriteLine(JsonSerializer.Serialize(new { id = "n" + s.Offset, text = s.Definition, label = s.Supersense, word = s.FirstWord }));
-        if (!counts.TryGetValue(s.Supersense, out int[]? c))
-        {
-            counts[s.Supersense] = c = new int[2];
-        }
-        c[isTest ? 1 : 0]++;
+        trainingText++;   // the training-text half: `assay-datasets corpus` writes it for the trainer
+        continue;
     }
+    string id = "n" + s.Offset;
+    (isTest ? wordnetTest : wordnetTrain).Add((id, JsonSerializer.Serialize(new { id, text = s.Definition, label = s.Supersense, word = s.FirstWord })));
+    if (!counts.TryGetValue(s.Supersense, out int[]? c))
+    {
+        counts[s.Supersense] = c = new int[2];
+    }
+    c[isTest ? 1 : 0]++;
 }
+WriteShuffled(Path.Combine(output, "train.jsonl"), wordnetTrain);
+WriteShuffled(Path.Combine(output, "test.jsonl"), wordnetTest);
 
 var readme = new StringBuilder();
 CultureInfo inv = CultureInfo.InvariantCulture;
@@ -55,6 +57,7 @@ readme.AppendLine("quoted example), `label` (the supersense, WordNet's lexicogra
 readme.AppendLine("Split by a fixed hash of the synset offset: SHA-256(\"wordnet-3.0/noun/\" + offset), first byte even = training-text");
 readme.AppendLine("half (definitions a model may be trained on: `assay-datasets corpus` writes them), odd = evaluation half, of which");
 readme.AppendLine("second byte < 52 = test. No definition of the evaluation half is in the training text.");
+readme.AppendLine(ShuffleNote);
 readme.AppendLine();
 readme.AppendLine(inv, $"Counts: {trainingText:N0} definitions in the training-text half; evaluation half {counts.Values.Sum(c => c[0] + c[1]):N0} = {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test.");
 readme.AppendLine();
@@ -144,20 +147,21 @@ static int WriteFortunes(string output, string folder)
 {
     Directory.CreateDirectory(output);
     var counts = new SortedDictionary<string, int[]>(StringComparer.Ordinal);
-    using (var train = new StreamWriter(Path.Combine(output, "train.jsonl")))
-    using (var test = new StreamWriter(Path.Combine(output, "test.jsonl")))
+    var train = new List<(string Id, string Line)>();
+    var test = new List<(string Id, string Line)>();
+    foreach (Fortune f in FortuneTopics.Read(folder))
     {
-        foreach (Fortune f in FortuneTopics.Read(folder))
+        bool isTest = FortuneTopics.IsTest(f);
+        string id = $"{f.Topic}-{f.Index}";
+        (isTest ? test : train).Add((id, JsonSerializer.Serialize(new { id, text = f.Text, label = f.Topic })));
+        if (!counts.TryGetValue(f.Topic, out int[]? c))
         {
-            bool isTest = FortuneTopics.IsTest(f);
-            (isTest ? test : train).WriteLine(JsonSerializer.Serialize(new { id = $"{f.Topic}-{f.Index}", text = f.Text, label = f.Topic }));
-            if (!counts.TryGetValue(f.Topic, out int[]? c))
-            {
-                counts[f.Topic] = c = new int[2];
-            }
-            c[isTest ? 1 : 0]++;
+            counts[f.Topic] = c = new int[2];
         }
+        c[isTest ? 1 : 0]++;
     }
+    WriteShuffled(Path.Combine(output, "train.jsonl"), train);
+    WriteShuffled(Path.Combine(output, "test.jsonl"), test);
     CultureInfo inv = CultureInfo.InvariantCulture;
     var readme = new StringBuilder();
     readme.AppendLine("# Fortune-file entries by topic");
@@ -166,6 +170,7 @@ static int WriteFortunes(string output, string folder)
     readme.AppendLine("English files; entries split at lines that are exactly `%`, trimmed, empty ones skipped, attribution lines");
     readme.AppendLine("(`-- Name` ending a paragraph, and its indented continuation) removed. `label` is the file name. Test split: first byte of");
     readme.AppendLine("SHA-256(\"fortunes/\" + topic + \"/\" + index) below 52 (about 20 %).");
+    readme.AppendLine(ShuffleNote);
     readme.AppendLine();
     readme.AppendLine(inv, $"Counts: {counts.Values.Sum(c => c[0] + c[1]):N0} entries = {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test.");
     readme.AppendLine();
@@ -176,6 +181,20 @@ static int WriteFortunes(string output, string folder)
     File.WriteAllText(Path.Combine(output, "README.md"), readme.ToString());
     Console.WriteLine(string.Create(inv, $"wrote {output}: {counts.Values.Sum(c => c[0]):N0} train + {counts.Values.Sum(c => c[1]):N0} test rows in {counts.Count} topics"));
     return 0;
+}
+
+/// <summary>
+/// Writes a task file's lines in the fixed shuffled order: sorted by the lowercase hexadecimal SHA-256 of "order/" + id
+/// (ordinal), so the first lines of a file are a fair sample of its labels and the order never depends on a random
+/// generator's version.
+/// </summary>
+static void WriteShuffled(string path, List<(string Id, string Line)> lines)
+{
+    using var w = new StreamWriter(path);
+    foreach ((string _, string line) in lines.OrderBy(l => Convert.ToHexStringLower(SHA256.HashData(Encoding.UTF8.GetBytes("order/" + l.Id))), StringComparer.Ordinal))
+    {
+        w.WriteLine(line);
+    }
 }
 
 /// <summary>The per-label table of a task README: label, train rows, test rows.</summary>
@@ -201,3 +220,8 @@ static bool CopyNotice(string notice, string output, string name)
     return true;
 }
 
+internal static partial class Program
+{
+    /// <summary>The task READMEs' line on the order of the lines.</summary>
+    private const string ShuffleNote = "Lines are in a fixed shuffled order (sorted by the hexadecimal SHA-256 of \"order/\" + id), so the first lines of a file are a fair sample of its labels.";
+}
