@@ -40,6 +40,20 @@ internal abstract class ProgressLine<T>(TextWriter err, bool interactive, TimeSp
         }
     }
 
+    /// <summary>
+    /// Forgets the last state and, on a terminal, blanks the line drawn so far, so another line can be written in its
+    /// place (the study's log between its steps).
+    /// </summary>
+    public void Clear()
+    {
+        _last = null;
+        if (interactive && _drawn)
+        {
+            err.Write("\r" + new string(' ', 100) + "\r");
+            _drawn = false;
+        }
+    }
+
     /// <summary>Called with every report before the line is written (to remember where this session began).</summary>
     protected virtual void Started(T value)
     {
@@ -118,5 +132,22 @@ internal sealed class SearchProgressPrinter(TextWriter err, bool interactive, Ti
         double share = p.Count == 0 ? 1 : (double)p.Done / p.Count;
         return string.Create(CultureInfo.InvariantCulture,
             $"assay: C {p.Done} of {p.Count} cross-validated (C = {p.C:G4}: log loss {p.LogLoss:F4}), {Clock(p.Elapsed)} elapsed, {Eta(share, 1 - share, p.Elapsed.TotalSeconds, "refitting on all rows")}");
+    }
+}
+
+/// <summary>Progress of a study: the step (of all), what it computes, units done of all in it, tokens/s and the step's ETA.</summary>
+internal sealed class StudyProgressPrinter(TextWriter err, bool interactive, TimeSpan interval)
+    : ProgressLine<Assay.Evaluation.StudyProgress>(err, interactive, interval)
+{
+    /// <summary>A printer on stderr: redrawn on a terminal, a line every 10 s otherwise.</summary>
+    public static StudyProgressPrinter ForConsole(TextWriter err) =>
+        new(err, !Console.IsErrorRedirected && ReferenceEquals(err, Console.Error), TimeSpan.FromSeconds(10));
+
+    protected override string Format(Assay.Evaluation.StudyProgress p)
+    {
+        double share = p.Total > 0 ? (double)p.Done / p.Total : 0;
+        string rate = p.Tokens > 0 ? ", " + Rate(p.Tokens, p.Elapsed) : "";
+        return string.Create(CultureInfo.InvariantCulture,
+            $"assay: step {p.Index} of {p.Count} ({p.Step}): {p.Done:N0} of {p.Total:N0} {p.Unit}{rate}, {Clock(p.Elapsed)} elapsed, step {Eta(share, 1 - share, p.Elapsed.TotalSeconds, "finishing")}");
     }
 }

@@ -26,7 +26,8 @@ internal static class StudyCommand
     {
         StudySpec spec = StudySpec.Load(studyFile);
         var clock = System.Diagnostics.Stopwatch.StartNew();
-        StudyResult result = Study.Run(spec, output, overwrite, new SynchronousProgress(err, clock));
+        StudyProgressPrinter printer = StudyProgressPrinter.ForConsole(err);
+        StudyResult result = Study.Run(spec, output, overwrite, new SynchronousProgress(err, clock, printer), printer);
         string markdown = StudyReport.Markdown(result);
         StudyReport.Write(result, output, markdown);
         o.Write(markdown);
@@ -35,9 +36,16 @@ internal static class StudyCommand
         return 0;
     }
 
-    /// <summary>Writes each progress line at once (Progress&lt;T&gt; would post them to the thread pool, out of order).</summary>
-    private sealed class SynchronousProgress(TextWriter err, System.Diagnostics.Stopwatch clock) : IProgress<string>
+    /// <summary>
+    /// Writes each log line at once (Progress&lt;T&gt; would post them to the thread pool, out of order), in place of the
+    /// step's progress line.
+    /// </summary>
+    private sealed class SynchronousProgress(TextWriter err, System.Diagnostics.Stopwatch clock, StudyProgressPrinter printer) : IProgress<string>
     {
-        public void Report(string value) => err.WriteLine($"[{clock.Elapsed:hh\\:mm\\:ss}] {value}");
+        public void Report(string value)
+        {
+            printer.Clear();
+            err.WriteLine($"[{clock.Elapsed:hh\\:mm\\:ss}] {value}");
+        }
     }
 }

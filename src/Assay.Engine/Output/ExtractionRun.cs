@@ -1,7 +1,6 @@
 using System.Diagnostics;
 using System.Globalization;
 using System.Reflection;
-using System.Security.Cryptography;
 using System.Text.Json;
 using System.Text.Json.Nodes;
 using Assay.Features;
@@ -236,7 +235,7 @@ public static class ExtractionRun
             {
                 ["file"] = Path.GetFileName(reader.Path),
                 ["bytes"] = reader.TotalBytes,
-                ["sha256"] = Sha256(reader.Path),
+                ["sha256"] = FileDigest.Sha256(reader.Path),
                 ["format"] = Spellings.Of(reader.Format),
                 ["text_field"] = options.Fields.Text,
                 ["id_field"] = options.Fields.Id,
@@ -307,12 +306,6 @@ public static class ExtractionRun
     }
 
     private static string Timestamp(DateTimeOffset t) => t.ToString("yyyy-MM-ddTHH:mm:ss.fffZ", CultureInfo.InvariantCulture);
-
-    private static string Sha256(string path)
-    {
-        using FileStream file = File.OpenRead(path);
-        return Convert.ToHexStringLower(SHA256.HashData(file));
-    }
 
     /// <summary>Turns the extractor's per-batch counts into run progress.</summary>
     private sealed class BatchReporter(IProgress<RunProgress> progress, CommitPoint state, TextInputReader reader, Stopwatch clock)

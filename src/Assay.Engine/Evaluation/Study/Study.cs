@@ -10,23 +10,32 @@ namespace Assay.Evaluation;
 
 /// <summary>
 /// Runs a study grid into a folder: the subsampled task (data/), one extraction run per model, prompt and split
-/// (runs/MODEL/PROMPT/train|test, resumable), and each cell's result (cells/*.json). A rerun with the same study file
-/// reuses what is there, so an interrupted study goes on where it stopped; a folder made from another study file is
-/// refused unless overwrite is asked for.
+/// (runs/MODEL/PROMPT/train|test, resumable), and each cell's result (cells/*.json). Every part stores the inputs it
+/// was computed from (model file hashes, template, feature, data hashes, probe settings, verbalizer hash), and a rerun
+/// reuses a part only when those are unchanged: an interrupted study goes on where it stopped, and a study file edited
+/// after a partial run keeps the cells whose inputs did not change. A folder made from another study file is refused
+/// unless overwrite is asked for.
 /// </summary>
 public static class Study
 {
     private static readonly JsonSerializerOptions Indented = new() { WriteIndented = true };
 
     /// <summary>Runs (or continues) the study.</summary>
+    /// <param name="spec">The study.</param>
+    /// <param name="outFolder">The study folder.</param>
+    /// <param name="overwrite">Start over in a folder that holds a study made from another study file.</param>
+    /// <param name="log">Told one line per finished step (and whether it was kept from an earlier run).</param>
+    /// <param name="progress">Told within each step: rows or texts done of all, tokens, time.</param>
+    /// <param name="cancellationToken">Stops between batches; a rerun continues.</param>
     /// <exception cref="StudyException">The folder holds another study or foreign files, a task file has a bad record, or a test label is unknown.</exception>
-    public static StudyResult Run(StudySpec spec, string outFolder, bool overwrite = false, IProgress<string>? log = null, CancellationToken cancellationToken = default)
+    public static StudyResult Run(StudySpec spec, string outFolder, bool overwrite = false, IProgress<string>? log = null,
+        IProgress<StudyProgress>? progress = null, CancellationToken cancellationToken = default)
     {
         ArgumentNullException.ThrowIfNull(spec);
         ArgumentNullException.ThrowIfNull(outFolder);
         outFolder = Path.GetFullPath(outFolder);
         // The folder is judged, then everything the study reads is checked, and only then is anything deleted or written.
-        string[]? startOver = Claim(spec, outFolder, overwrite);
+        string[]? startOver = Claim(spec, outFolder, overwrite, log);
         Check(spec);
         if (startOver != null)
         {
@@ -38,21 +47,38 @@ public static class Study
         string cells = Directory.CreateDirectory(Path.Combine(outFolder, StudyFolder.CellsFolder)).FullName;
         Verbalizer? verbalizer = spec.Verbalizer == null ? null : Verbalizer.Load(spec.Verbalizer);
         string[] testTexts = [.. ReadRecords(testFile).Select(r => r.Text!)];
+        long trainRows = ReadRecords(trainFile).LongCount();
+        var dataInputs = new JsonObject { ["train"] = FileDigest.Sha256(trainFile), ["test"] = FileDigest.Sha256(testFile) };
+        string? verbalizerSha = spec.Verbalizer == null ? null : FileDigest.Sha256(spec.Verbalizer);
 
+        var steps = new StepTracker(progress, spec.Models.Count * (1 + (spec.Prompts.Count * (2 + spec.Features.Count))));
         var models = new List<StudyModel>();
         var results = new List<StudyCell>();
         LabelIndex classes = LabelIndex.Sorted(ReadRecords(trainFile).Select(r => r.Label));
         foreach ((string name, string folder) in spec.Models)
         {
             LanguageModel model = LanguageModel.Open(folder);
-            CrossEntropyResult ce = Cached(Path.Combine(cells, name + ".cross-entropy.json"), () => CrossEntropy.Score(model, testTexts), WriteCrossEntropy, ReadCrossEntropy);
+            var modelFiles = new JsonArray([.. ModelFile.Describe(folder).Select(f => new JsonObject { ["name"] = f.Name, ["bytes"] = f.Bytes, ["sha256"] = f.Sha256 })]);
+            steps.Begin(name + "/cross-entropy");
+            var ceInputs = new JsonObject { ["model"] = modelFiles.DeepClone(), ["test"] = dataInputs["test"]!.DeepClone() };
+            CrossEntropyResult ce = Cached(Path.Combine(cells, name + ".cross-entropy.json"), ceInputs,
+                () => CrossEntropy.Score(model, testTexts, progress: steps.Relay<ExtractionProgress>(p => (p.Rows, testTexts.Length, "texts", p.Tokens))),
+                WriteCrossEntropy, ReadCrossEntropy, out bool ceKept);
             models.Add(new StudyModel(name, folder, ce));
-            log?.Report(string.Create(CultureInfo.InvariantCulture, $"{name}: cross-entropy {ce.NatsPerToken:F4} nats/token on {ce.Texts:N0} test texts"));
+            log?.Report(string.Create(CultureInfo.InvariantCulture, $"{name}: cross-entropy {ce.NatsPerToken:F4} nats/token on {ce.Texts:N0} test texts{Kept(ceKept)}"));
             foreach ((string prompt, string template) in spec.Prompts)
             {
                 cancellationToken.ThrowIfCancellationRequested();
-                (FeatureRequest[] requests, Dictionary<string, string> stems) = Requests(spec, model, verbalizer);
+                (FeatureRequest[] requests, Dictionary<string, FeatureRequest> byFeature) = Requests(spec, model, verbalizer);
                 string runs = Path.Combine(outFolder, StudyFolder.RunsFolder, name, prompt);
+                var runInputs = new JsonObject
+                {
+                    ["model"] = modelFiles.DeepClone(),
+                    ["template"] = template,
+                    ["features"] = new JsonArray([.. requests.Select(r => r.Describe())]),
+                    ["data"] = dataInputs.DeepClone(),
+                };
+                ClaimRuns(runs, runInputs);
                 var options = new RunOptions
                 {
                     Extraction = new ExtractionOptions { Prompt = PromptTemplate.Parse(template), Features = requests },
@@ -60,29 +86,51 @@ public static class Study
                     Resume = true,
                     Strict = true,
                 };
-                foreach ((string split, string file) in new[] { ("train", trainFile), ("test", testFile) })
+                foreach ((string split, string file, long rows) in new[] { ("train", trainFile, trainRows), ("test", testFile, testTexts.LongLength) })
                 {
-                    RunSummary s = ExtractionRun.Execute(model, file, Path.Combine(runs, split), options, cancellationToken: cancellationToken);
+                    steps.Begin($"{name}/{prompt}/{split}");
+                    RunSummary s = ExtractionRun.Execute(model, file, Path.Combine(runs, split), options,
+                        steps.Relay<RunProgress>(p => (p.Accepted, rows, "rows", p.Tokens)), cancellationToken);
                     log?.Report(string.Create(CultureInfo.InvariantCulture,
                         $"{name}/{prompt}/{split}: {s.Accepted:N0} rows{(s.AlreadyComplete ? " (already extracted)" : $" in {s.Elapsed.TotalSeconds:F0} s")}"));
                 }
                 foreach (string feature in spec.Features)
                 {
                     cancellationToken.ThrowIfCancellationRequested();
+                    steps.Begin($"{name}/{prompt}/{feature}");
+                    FeatureRequest request = byFeature[feature];
+                    bool zeroShot = feature == "zero-shot";
+                    var cellInputs = new JsonObject
+                    {
+                        ["model"] = modelFiles.DeepClone(),
+                        ["template"] = template,
+                        ["feature"] = feature,
+                        ["request"] = request.Describe(),
+                        ["data"] = dataInputs.DeepClone(),
+                        ["verbalizer"] = request is WordListFeature ? verbalizerSha : null,
+                        ["probe"] = zeroShot ? null : new JsonObject
+                        {
+                            ["folds"] = spec.Probe.Folds,
+                            ["strengths"] = new JsonArray([.. spec.Probe.InverseRegularizations.Select(c => JsonValue.Create(c))]),
+                        },
+                    };
                     string cellFile = Path.Combine(cells, $"{name}.{prompt}.{feature.Replace(':', '_')}.json");
-                    StudyCell cell = Cached(cellFile,
-                        () => feature == "zero-shot"
-                            ? ZeroShot(name, prompt, Path.Combine(runs, "test"), verbalizer!, classes)
-                            : Probe(name, prompt, feature, stems[feature], Path.Combine(runs, "train"), Path.Combine(runs, "test"), spec.Probe),
-                        c => WriteCell(c, classes.Classes), ReadCell);
+                    StudyCell cell = Cached(cellFile, cellInputs,
+                        () => zeroShot
+                            ? ZeroShot(name, prompt, Path.Combine(runs, "test"), Stem(request, model), verbalizer!, classes)
+                            : Probe(name, prompt, feature, request, model, Path.Combine(runs, "train"), Path.Combine(runs, "test"), spec.Probe,
+                                steps.Relay<ProbeSearchProgress>(p => (p.Done, p.Count, "C values", 0))),
+                        c => WriteCell(c, classes.Classes), ReadCell, out bool kept);
                     results.Add(cell);
                     log?.Report(string.Create(CultureInfo.InvariantCulture,
-                        $"{name}/{prompt}/{feature}: accuracy {cell.Score.Accuracy:P1} ({cell.Score.AccuracyLow:P1} – {cell.Score.AccuracyHigh:P1}), log loss {cell.Score.LogLoss:F3}{(cell.InverseRegularization is double c ? $", C = {c:G3}" : "")}"));
+                        $"{name}/{prompt}/{feature}: accuracy {cell.Score.Accuracy:P1} ({cell.Score.AccuracyLow:P1} – {cell.Score.AccuracyHigh:P1}), log loss {cell.Score.LogLoss:F3}{(cell.InverseRegularization is double c ? $", C = {c:G3}" : "")}{Kept(kept)}"));
                 }
             }
         }
         return new StudyResult(spec, classes.Classes, Prior(classes, trainFile, testFile), models, results, Curves(spec, models, results));
     }
+
+    private static string Kept(bool kept) => kept ? " (kept from an earlier run)" : "";
 
     /// <summary>
     /// Everything a study reads, checked before anything is computed or written: both task files (every record, a
@@ -169,10 +217,11 @@ public static class Study
         return curves;
     }
 
-    private static (FeatureRequest[] Requests, Dictionary<string, string> Stems) Requests(StudySpec spec, LanguageModel model, Verbalizer? verbalizer)
+    /// <summary>The feature requests of one run (each kind once), and the request each study feature reads.</summary>
+    private static (FeatureRequest[] Requests, Dictionary<string, FeatureRequest> ByFeature) Requests(StudySpec spec, LanguageModel model, Verbalizer? verbalizer)
     {
         var requests = new List<FeatureRequest>();
-        var stems = new Dictionary<string, string>(StringComparer.Ordinal);
+        var byFeature = new Dictionary<string, FeatureRequest>(StringComparer.Ordinal);
         int layers = model.Config.Layers;
         foreach (string feature in spec.Features)
         {
@@ -196,29 +245,33 @@ public static class Study
             {
                 requests.Add(request);
             }
-            FeatureRequest kept = same ?? request;
-            stems[feature] = kept.Outputs(ModelShape.Of(model.Config))[kept.PrimaryOutput].Name;
+            byFeature[feature] = same ?? request;
         }
-        return ([.. requests], stems);
+        return ([.. requests], byFeature);
     }
 
-    private static StudyCell Probe(string model, string prompt, string feature, string stem, string trainRun, string testRun, ProbeOptions options)
+    /// <summary>The run file a study feature reads: its request's primary output.</summary>
+    private static string Stem(FeatureRequest request, LanguageModel model) => request.Outputs(ModelShape.Of(model.Config))[request.PrimaryOutput].Name;
+
+    private static StudyCell Probe(string model, string prompt, string feature, FeatureRequest request, LanguageModel languageModel,
+        string trainRun, string testRun, ProbeOptions options, IProgress<ProbeSearchProgress> progress)
     {
+        string stem = Stem(request, languageModel);
         RunFeatures train = RunFeatures.Load(trainRun, stem), test = RunFeatures.Load(testRun, stem);
-        LinearProbe probe = LinearProbe.Fit(train.Values, train.Rows, train.Width, train.Labels, options);
+        LinearProbe probe = LinearProbe.Fit(train.Values, train.Rows, train.Width, train.Labels, options, progress);
         ClassificationReport score = ProbeScorer.Score(probe, test, testRun).Report;
         return new StudyCell(model, prompt, feature, train.Width, train.Rows, probe.InverseRegularization, score);
     }
 
     /// <summary>The verbalizer's label distribution (as assay zero-shot reports it), in the probe's class order.</summary>
-    private static StudyCell ZeroShot(string model, string prompt, string testRun, Verbalizer verbalizer, LabelIndex classes)
+    private static StudyCell ZeroShot(string model, string prompt, string testRun, string stem, Verbalizer verbalizer, LabelIndex classes)
     {
         if (!verbalizer.Labels.Order(StringComparer.Ordinal).SequenceEqual(classes.Classes, StringComparer.Ordinal))
         {
             string missing = classes.Classes.Except(verbalizer.Labels, StringComparer.Ordinal).Concat(verbalizer.Labels.Except(classes.Classes, StringComparer.Ordinal)).First();
             throw new StudyException(testRun, $"the verbalizer's labels and the training labels differ (\"{missing}\" is in one only); zero-shot needs the same labels");
         }
-        RunFeatures test = RunFeatures.Load(testRun, "words.first");
+        RunFeatures test = RunFeatures.Load(testRun, stem);
         string? unknown = classes.FirstUnknown(test.Labels);
         if (unknown != null)
         {
@@ -239,11 +292,12 @@ public static class Study
     }
 
     /// <summary>
-    /// What the folder holds: foreign files, another study (without overwrite) and parts without a study file (without
-    /// overwrite) are refused; the same study is continued (null); anything else starts over (the entries to remove).
-    /// Nothing is changed here but creating the folder.
+    /// What the folder holds: foreign files, a study made from another study file (without overwrite) and parts without
+    /// a study file (without overwrite) are refused; the same study, or the same study file edited since, is continued
+    /// (no entries to remove: each part is then kept only if its inputs are unchanged); anything else starts over (the
+    /// entries to remove). Nothing is changed here but creating the folder.
     /// </summary>
-    private static string[]? Claim(StudySpec spec, string folder, bool overwrite)
+    private static string[]? Claim(StudySpec spec, string folder, bool overwrite, IProgress<string>? log)
     {
         Directory.CreateDirectory(folder);
         string specPath = Path.Combine(folder, StudyFolder.SpecFile);
@@ -255,19 +309,62 @@ public static class Study
         }
         if (File.Exists(specPath) && !overwrite)
         {
-            JsonNode? stored = JsonNode.Parse(File.ReadAllBytes(specPath));
-            if (!JsonNode.DeepEquals(stored, current))
+            JsonNode? stored = ReadJson(specPath);
+            if (JsonNode.DeepEquals(stored, current))
             {
-                string field = current.Select(p => p.Key).FirstOrDefault(k => !JsonNode.DeepEquals(stored?[k], current[k])) ?? "study";
-                throw new StudyException(folder, $"holds a study made with a different {field.Replace('_', ' ')}; give another folder, or pass --overwrite to start over");
+                return null;
             }
-            return null;
+            string field = current.Select(p => p.Key).Where(k => k != StudySpec.FileField).FirstOrDefault(k => !JsonNode.DeepEquals(stored?[k], current[k])) ?? "study file";
+            string? storedFile = (stored?[StudySpec.FileField] as JsonValue)?.TryGetValue(out string? f) == true ? f : null;
+            if (storedFile != spec.Path)
+            {
+                throw new StudyException(folder, $"holds a study made from another study file ({storedFile ?? "unknown"}) with a different {field.Replace('_', ' ')}; give another folder, or pass --overwrite to start over");
+            }
+            log?.Report($"{spec.Path} has changed since this folder was made (first in {field.Replace('_', ' ')}): the parts whose inputs did not change are kept, the others computed again");
+            return [];
         }
         if (!overwrite && entries.Length > 0)
         {
             throw new StudyException(folder, $"holds parts of a study without its {StudyFolder.SpecFile}; pass --overwrite to start over");
         }
         return entries;
+    }
+
+    /// <summary>
+    /// The runs of one model and prompt are kept only if they were extracted from the same inputs (model files,
+    /// template, every feature request, data); otherwise both splits go, to be extracted again.
+    /// </summary>
+    private static void ClaimRuns(string runs, JsonObject inputs)
+    {
+        string path = Path.Combine(runs, RunInputsFile);
+        if (Directory.Exists(runs) && !(File.Exists(path) && JsonNode.DeepEquals(ReadJson(path), inputs)))
+        {
+            Directory.Delete(runs, recursive: true);
+        }
+        if (!File.Exists(path))
+        {
+            Directory.CreateDirectory(runs);
+            AtomicFile.WriteText(path, inputs.ToJsonString(Indented) + "\n");
+        }
+    }
+
+    /// <summary>The inputs of a model's and prompt's runs, beside them: runs/MODEL/PROMPT/inputs.json.</summary>
+    private const string RunInputsFile = "inputs.json";
+
+    /// <summary>The key that says what a cached part was computed from.</summary>
+    private const string InputsField = "inputs";
+
+    /// <summary>A JSON file the study wrote, or null where it is not JSON (then the part is computed again).</summary>
+    private static JsonNode? ReadJson(string path)
+    {
+        try
+        {
+            return JsonNode.Parse(File.ReadAllBytes(path));
+        }
+        catch (JsonException)
+        {
+            return null;
+        }
     }
 
     /// <summary>Starting over: the earlier study's parts and reports go, so nothing stale stays beside the new results.</summary>
@@ -290,12 +387,15 @@ public static class Study
 
     /// <summary>
     /// Every k-th record of each label of a task file (in file order), and at least the first <paramref name="least"/>
-    /// of a label that has them, so cross-validation sees every class; written as JSONL (id, text, label). A bad record
-    /// stops the study.
+    /// of a label that has them, so cross-validation sees every class; written as JSONL (id, text, label), with its
+    /// inputs (the source's path and hash, k and the least count) beside it, so an edited study or task file makes it
+    /// again. A bad record stops the study.
     /// </summary>
     private static string Subsample(string source, int every, int least, string target)
     {
-        if (File.Exists(target))
+        var inputs = new JsonObject { ["source"] = source, ["sha256"] = FileDigest.Sha256(source), ["every"] = every, ["least"] = least };
+        string inputsFile = Path.ChangeExtension(target, ".inputs.json");
+        if (File.Exists(target) && File.Exists(inputsFile) && JsonNode.DeepEquals(ReadJson(inputsFile), inputs))
         {
             return target;
         }
@@ -314,6 +414,7 @@ public static class Study
             }
             AtomicFile.WriteText(target, w.ToString());
         }
+        AtomicFile.WriteText(inputsFile, inputs.ToJsonString(Indented) + "\n");
         return target;
     }
 
@@ -326,15 +427,50 @@ public static class Study
         }
     }
 
-    private static T Cached<T>(string path, Func<T> compute, Func<T, JsonObject> write, Func<JsonObject, T> read)
+    /// <summary>A part read back when its file holds the same inputs, else computed and written with them.</summary>
+    private static T Cached<T>(string path, JsonObject inputs, Func<T> compute, Func<T, JsonObject> write, Func<JsonObject, T> read, out bool kept)
     {
-        if (File.Exists(path))
+        if (File.Exists(path) && ReadJson(path) is JsonObject stored && JsonNode.DeepEquals(stored[InputsField], inputs))
         {
-            return read(JsonNode.Parse(File.ReadAllBytes(path))!.AsObject());
+            kept = true;
+            return read(stored);
         }
         T value = compute();
-        AtomicFile.WriteText(path, write(value).ToJsonString(Indented) + "\n");
+        JsonObject json = write(value);
+        json[InputsField] = inputs.DeepClone();
+        AtomicFile.WriteText(path, json.ToJsonString(Indented) + "\n");
+        kept = false;
         return value;
+    }
+
+    /// <summary>Numbers the study's steps and turns each step's own progress into <see cref="StudyProgress"/>.</summary>
+    private sealed class StepTracker(IProgress<StudyProgress>? progress, int count)
+    {
+        private readonly System.Diagnostics.Stopwatch _clock = new();
+        private int _index;
+        private string _step = "";
+
+        public void Begin(string step)
+        {
+            _index++;
+            _step = step;
+            _clock.Restart();
+        }
+
+        /// <summary>A synchronous relay (Progress&lt;T&gt; would post to the thread pool, out of order).</summary>
+        public IProgress<T> Relay<T>(Func<T, (long Done, long Total, string Unit, long Tokens)> map) => new Relayed<T>(this, map);
+
+        private sealed class Relayed<T>(StepTracker tracker, Func<T, (long Done, long Total, string Unit, long Tokens)> map) : IProgress<T>
+        {
+            public void Report(T value)
+            {
+                (long done, long total, string unit, long tokens) = map(value);
+                tracker.Report(done, total, unit, tokens);
+            }
+        }
+
+        private void Report(long done, long total, string unit, long tokens) =>
+            progress?.Report(new StudyProgress(_index, count, _step, done, total, unit, tokens, _clock.Elapsed));
     }
 
     private static JsonObject WriteCrossEntropy(CrossEntropyResult r) => new()

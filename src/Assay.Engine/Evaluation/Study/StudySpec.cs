@@ -70,6 +70,9 @@ public sealed partial record StudySpec
     [GeneratedRegex("^(hidden(:-?[0-9]+)?|cmean|words|zero-shot)$")]
     private static partial Regex FeaturePattern();
 
+    /// <summary>The field of <see cref="ToJson"/> that names the study file itself.</summary>
+    internal const string FileField = "study_file";
+
     /// <summary>Reads and checks a study file.</summary>
     /// <exception cref="StudyException">Not JSON, a field missing or of the wrong kind, an unknown feature, a bad name, or a missing file or folder.</exception>
     public static StudySpec Load(string path)
@@ -161,9 +164,10 @@ public sealed partial record StudySpec
         };
     }
 
-    /// <summary>The study as resolved (absolute paths), as stored beside the results to tell a rerun from a new study.</summary>
+    /// <summary>The study as resolved (absolute paths, and the study file's own), as stored beside the results to tell a rerun, an edited study file and another study apart.</summary>
     public JsonObject ToJson() => new()
     {
+        [FileField] = Path,
         ["train"] = Train,
         ["test"] = Test,
         ["train_every"] = TrainEvery,
