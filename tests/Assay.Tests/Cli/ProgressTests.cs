@@ -45,4 +45,14 @@ public sealed class ProgressTests
         Assert.StartsWith("assay: C 3 of 3 cross-validated (C = 10: log loss ", last, StringComparison.Ordinal);
         Assert.EndsWith("refitting on all rows", last, StringComparison.Ordinal);
     }
+
+    [Fact]
+    public void The_study_line_names_the_step_its_units_the_rate_and_the_step_eta()
+    {
+        var err = new StringWriter();
+        var printer = new StudyProgressPrinter(err, interactive: false, TimeSpan.Zero);
+        printer.Report(new Assay.Evaluation.StudyProgress(3, 40, "final/kind-of/train", 1_000, 4_000, "rows", 20_000, TimeSpan.FromSeconds(10)));
+        // 2,000 tokens/s; a quarter done in 10 s leaves 30 s.
+        Assert.Equal("assay: step 3 of 40 (final/kind-of/train): 1,000 of 4,000 rows, 2,000 tokens/s, 0:00:10 elapsed, step ETA 0:00:30", err.ToString().TrimEnd());
+    }
 }
