@@ -91,7 +91,7 @@ internal static class ProbeCommand
         {
             err.WriteLine($"assay: comparing different runs on purpose: {difference}");
         }
-        ReportFolder.Claim(output, overwrite);
+        using Assay.Output.FolderLock folderLock = ReportFolder.Claim(output, overwrite);
 
         LinearProbe probe;
         var report = new JsonObject { ["feature"] = stem };

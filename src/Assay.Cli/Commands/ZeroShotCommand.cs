@@ -107,7 +107,7 @@ internal static class ZeroShotCommand
         double majorityShare = labels.Count(l => l == majority) / (double)labels.Count;
         if (outFolder != null)
         {
-            ReportFolder.Claim(outFolder, overwrite);
+            using Assay.Output.FolderLock folderLock = ReportFolder.Claim(outFolder, overwrite);
             Predictions.Write(Path.Combine(outFolder, ReportFolder.PredictionsFile), ids, labels, classes.Classes, scorer.Probabilities());
             var test = new JsonObject { ["input"] = input };
             foreach ((string key, JsonNode? value) in score.ToJson(classes.Classes))

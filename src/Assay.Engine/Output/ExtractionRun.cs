@@ -79,6 +79,7 @@ public static class ExtractionRun
 
         var clock = Stopwatch.StartNew();
         DateTimeOffset started = DateTimeOffset.UtcNow;
+        using FolderLock folderLock = FolderLock.Acquire(outputFolder);
         CommitPoint? resumed = RunFolder.Claim(outputFolder, options.Resume, options.Overwrite, settings);
         if (resumed is { Complete: true })
         {

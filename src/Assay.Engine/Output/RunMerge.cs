@@ -38,7 +38,8 @@ public static class RunMerge
             throw new ArgumentException("no shard folders to merge", nameof(shardFolders));
         }
         outputFolder = Path.TrimEndingDirectorySeparator(Path.GetFullPath(outputFolder));
-        if (Directory.Exists(outputFolder) && Directory.EnumerateFileSystemEntries(outputFolder).Any())
+        bool existed = Directory.Exists(outputFolder);
+        if (existed && Directory.EnumerateFileSystemEntries(outputFolder).Any(e => !FolderLock.IsLockFile(Path.GetFileName(e))))
         {
             throw new RunFolderException(outputFolder, "already holds files; the merge writes a new or empty folder");
         }
@@ -47,14 +48,21 @@ public static class RunMerge
         ShardRun first = shards[0];
         long rows = first.InputRows;
 
+        // One merge writes the folder (and its staging folder beside it) at a time. The files are made in the staging
+        // folder, then moved in, record.json last: the folder is a finished run only once everything is there.
+        FolderLock folderLock = FolderLock.Acquire(outputFolder);
         string staging = outputFolder + ".merging";
-        if (Directory.Exists(staging))
-        {
-            Directory.Delete(staging, recursive: true);
-        }
-        Directory.CreateDirectory(staging);
         try
         {
+            if (Directory.EnumerateFileSystemEntries(outputFolder).Any(e => !FolderLock.IsLockFile(Path.GetFileName(e))))
+            {
+                throw new RunFolderException(outputFolder, "already holds files; the merge writes a new or empty folder");
+            }
+            if (Directory.Exists(staging))
+            {
+                Directory.Delete(staging, recursive: true);
+            }
+            Directory.CreateDirectory(staging);
             long done = 0;
             foreach ((string file, string dtype, int width) in first.Files)
             {
@@ -68,15 +76,24 @@ public static class RunMerge
             RunRecord.Create(first.Settings, counts, first.Files).Write(staging);
             AtomicFile.WriteJson(Path.Combine(staging, RunFolder.MergeFile), Provenance(shards));
 
-            if (Directory.Exists(outputFolder))
+            foreach (string file in Directory.GetFiles(staging).Select(f => Path.GetFileName(f)).OrderBy(n => n == RunFolder.RecordFile))
             {
-                Directory.Delete(outputFolder);
+                File.Move(Path.Combine(staging, file), Path.Combine(outputFolder, file));
             }
-            Directory.Move(staging, outputFolder);
+            Directory.Delete(staging);
+            folderLock.Dispose();
         }
         catch
         {
-            Directory.Delete(staging, recursive: true);
+            if (Directory.Exists(staging))
+            {
+                Directory.Delete(staging, recursive: true);
+            }
+            folderLock.Dispose();
+            if (!existed && Directory.Exists(outputFolder) && !Directory.EnumerateFileSystemEntries(outputFolder).Any())
+            {
+                Directory.Delete(outputFolder);
+            }
             throw;
         }
         return new MergeSummary(shards.Length, rows, first.Rejected, first.Files.Length);

@@ -40,6 +40,24 @@ public sealed class ShardMergeTests
         return folders;
     }
 
+    [Fact]
+    public void A_merge_into_a_folder_another_writer_holds_is_refused_naming_it()
+    {
+        using var temp = new TempFolder();
+        string input = ExtractionRunTests.WriteInput(temp, 6);
+        string[] shards = RunShards(Model(), input, temp, 2, "s");
+        string merged = temp.File("merged");
+        using (FolderLock.Acquire(merged))
+        {
+            var e = Assert.Throws<RunFolderException>(() => RunMerge.Merge(shards, merged));
+            Assert.Contains($"is being written by process {Environment.ProcessId} on ", e.Message, StringComparison.Ordinal);
+            Assert.False(Directory.Exists(merged + ".merging"));
+        }
+        RunMerge.Merge(shards, merged);
+        Assert.Equal(6, RunRecord.Read(merged).Counts.Accepted);
+        Assert.DoesNotContain(Directory.GetFiles(merged), f => FolderLock.IsLockFile(Path.GetFileName(f)));
+    }
+
     private static void AssertSameBytes(string expectedFolder, string actualFolder)
     {
         Dictionary<string, byte[]> expected = ExtractionRunTests.Bytes(expectedFolder), actual = ExtractionRunTests.Bytes(actualFolder);

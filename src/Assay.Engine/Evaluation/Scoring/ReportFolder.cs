@@ -27,21 +27,30 @@ public static class ReportFolder
         }
     }
 
-    /// <summary>Takes <paramref name="folder"/> for a new report.</summary>
-    /// <exception cref="Output.RunFolderException">Foreign files, or an earlier report without <paramref name="overwrite"/>.</exception>
-    public static void Claim(string folder, bool overwrite)
+    /// <summary>Takes <paramref name="folder"/> for a new report: locks it (dispose the lock once the report is written), then clears it.</summary>
+    /// <exception cref="Output.RunFolderException">Another writer holds it, foreign files, or an earlier report without <paramref name="overwrite"/>.</exception>
+    public static Output.FolderLock Claim(string folder, bool overwrite)
     {
         ArgumentNullException.ThrowIfNull(folder);
-        Directory.CreateDirectory(folder);
-        foreach (string name in Check(folder, overwrite))
+        Output.FolderLock folderLock = Output.FolderLock.Acquire(folder);
+        try
         {
-            File.Delete(Path.Combine(folder, name));
+            foreach (string name in Check(folder, overwrite))
+            {
+                File.Delete(Path.Combine(folder, name));
+            }
+            return folderLock;
+        }
+        catch
+        {
+            folderLock.Dispose();
+            throw;
         }
     }
 
     private static string[] Check(string folder, bool overwrite)
     {
-        string[] names = [.. Directory.EnumerateFileSystemEntries(folder).Select(e => Path.GetFileName(e)!)];
+        string[] names = [.. Directory.EnumerateFileSystemEntries(folder).Select(e => Path.GetFileName(e)!).Where(n => !Output.FolderLock.IsLockFile(n))];
         string[] foreign = [.. names.Where(n => n is not (ProbeFile or ReportFile or PredictionsFile) && !n.EndsWith(Output.AtomicFile.TemporarySuffix, StringComparison.Ordinal))];
         if (foreign.Length > 0)
         {

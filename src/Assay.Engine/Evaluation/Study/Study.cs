@@ -34,6 +34,7 @@ public static class Study
         ArgumentNullException.ThrowIfNull(spec);
         ArgumentNullException.ThrowIfNull(outFolder);
         outFolder = Path.GetFullPath(outFolder);
+        using FolderLock folderLock = FolderLock.Acquire(outFolder);
         // The folder is judged, then everything the study reads is checked, and only then is anything deleted or written.
         string[]? startOver = Claim(spec, outFolder, overwrite, log);
         Check(spec);
@@ -302,7 +303,7 @@ public static class Study
         Directory.CreateDirectory(folder);
         string specPath = Path.Combine(folder, StudyFolder.SpecFile);
         JsonObject current = spec.ToJson();
-        string[] entries = [.. Directory.EnumerateFileSystemEntries(folder).Select(e => Path.GetFileName(e)!)];
+        string[] entries = [.. Directory.EnumerateFileSystemEntries(folder).Select(e => Path.GetFileName(e)!).Where(e => !FolderLock.IsLockFile(e))];
         if (entries.Any(e => !StudyFolder.Owns(e)))
         {
             throw new StudyException(folder, "holds files that are not part of a study; give an empty or new folder");

@@ -39,7 +39,7 @@ public static class StudyFolder
 
     /// <summary>Whether an entry of this name belongs in a study folder (a part of the study or a report file).</summary>
     internal static bool Owns(string name) =>
-        name is SpecFile or DataFolder or RunsFolder or CellsFolder or MarkdownFile or CsvFile
+        Output.FolderLock.IsLockFile(name) || name is SpecFile or DataFolder or RunsFolder or CellsFolder or MarkdownFile or CsvFile
         || (name.EndsWith(PlotSuffix, StringComparison.Ordinal)
             && (name.StartsWith(AccuracyPrefix, StringComparison.Ordinal) || name.StartsWith(LossPrefix, StringComparison.Ordinal)));
 }

@@ -10,7 +10,7 @@ namespace Assay.Output;
 /// <item><see cref="ProgressFile"/>: only while the run is unfinished — the last commit, from which a resume goes on;</item>
 /// <item><see cref="MergeFile"/>: in a merged folder, where its shards came from.</item>
 /// </list>
-/// A folder holding anything else is never written to.
+/// A folder holding anything else is never written to, and one writer at a time writes it (<see cref="FolderLock"/>).
 /// </summary>
 public static class RunFolder
 {
@@ -47,7 +47,7 @@ public static class RunFolder
     internal static CommitPoint? Claim(string folder, bool resume, bool overwrite, System.Text.Json.Nodes.JsonObject settings)
     {
         Directory.CreateDirectory(folder);
-        string[] present = [.. Directory.GetFiles(folder).Select(Path.GetFileName)!];
+        string[] present = [.. Directory.GetFiles(folder).Select(f => Path.GetFileName(f)).Where(n => !FolderLock.IsLockFile(n))];
         string[] foreign = [.. present.Where(n => !IsRunFile(n))];
         if (foreign.Length > 0 || Directory.GetDirectories(folder).Length > 0)
         {
