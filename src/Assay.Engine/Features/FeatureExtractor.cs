@@ -217,7 +217,14 @@ public sealed class FeatureExtractor
                 tokens += jobs[end].Length;
                 end++;
             }
-            RunBatch(jobs, start, end, rows, values, ids);
+            try
+            {
+                RunBatch(jobs, start, end, rows, values, ids);
+            }
+            catch (NonFiniteValueException e) when (e.Text == null)
+            {
+                throw e.InText(firstIndex + jobs[start + e.Sequence].Row);
+            }
             int finished = 0;
             for (int j = start; j < end; j++)
             {
@@ -322,6 +329,7 @@ public sealed class FeatureExtractor
                 r.HiddenState(_finalLayer, h.Sequence, h.Position).CopyTo(normed.AsSpan(i * d, d));
             }
             head.Logits(normed, n, logits, parallel);
+            NonFiniteValueException.CheckRows(logits.AsSpan(0, n * v), v, i => (headRows[first + i].Sequence, headRows[first + i].Position), _model.Folder);
 
             // Next-word rows become distributions in place; continuation rows give log p(token).
             var mainRows = new List<int>();

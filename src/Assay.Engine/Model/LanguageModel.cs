@@ -149,6 +149,6 @@ public sealed class LanguageModel
         {
             throw new ArgumentException($"MaxThreads {options.MaxThreads}: expected 0 (all cores) or a positive count", nameof(options));
         }
-        return new ForwardPass(_weights, c, variant, options.Parallelism).Run(sequences, starts, lengths, total, options);
+        return new ForwardPass(_weights, c, variant, options.Parallelism, Folder).Run(sequences, starts, lengths, total, options);
     }
 }

@@ -163,7 +163,16 @@ public static class ExtractionRun
                 }
                 reporter?.StartGroup(read, rejected.Count);
 
-                FeatureRow[] rows = texts.Count == 0 ? [] : extractor.ExtractGroup(texts, state.Accepted, tracker, cancellationToken);
+                FeatureRow[] rows;
+                try
+                {
+                    rows = texts.Count == 0 ? [] : extractor.ExtractGroup(texts, state.Accepted, tracker, cancellationToken);
+                }
+                catch (NonFiniteValueException e) when (e.Text is long text)
+                {
+                    InputRecord record = accepted[(int)(text - state.Accepted)];
+                    throw e.InRecord(string.Create(CultureInfo.InvariantCulture, $"{reader.Path} line {record.Line} (id \"{record.Id}\")"));
+                }
                 cancellationToken.ThrowIfCancellationRequested();
                 files.Append(rows, accepted, rowIndices, rejected);
                 state.Read += read;
