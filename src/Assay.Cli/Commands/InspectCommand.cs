@@ -49,15 +49,10 @@ internal static class InspectCommand
             .Select(g => string.Create(inv, $"{g.Key.Name()} × {g.Count()}")));
         o.WriteLine(string.Create(inv, $"tensors       {tensors.Count} ({dtypes}), {tensors.Sum(t => t.ByteLength):N0} bytes"));
 
-        string? problem = null;
-        try
+        string? problem = Check(folder, c, tokenizer, checkpoint, out CheckpointSummary? summary);
+        if (summary is not null)
         {
-            CheckpointSummary summary = LanguageModel.CheckCheckpoint(checkpoint, c, Path.Combine(folder, ModelConfig.FileName));
             o.WriteLine(string.Create(inv, $"              {summary.ParameterValues:N0} parameter values stored; {summary.SkippedBuffers} mask buffers skipped; names {(summary.NamePrefix.Length == 0 ? "without" : "with")} the \"transformer.\" prefix"));
-        }
-        catch (WeightsFormatException e)
-        {
-            problem = e.Message;
         }
 
         o.WriteLine();
@@ -81,7 +76,7 @@ internal static class InspectCommand
             o.WriteLine($"check         FAILED: {problem}");
             return CommandRunner.BadInput;
         }
-        o.WriteLine("check         OK: every parameter the config implies is present with its shape");
+        o.WriteLine("check         OK: every parameter the config implies is present with its shape, every stored value is finite, and every tokenizer id is in the vocabulary");
         return 0;
     }
 
@@ -96,16 +91,7 @@ internal static class InspectCommand
         ModelConfig c = ModelConfig.Load(configPath);
         TextTokenizer tokenizer = TextTokenizer.OpenFolder(folder);
         using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
-        string? problem = null;
-        CheckpointSummary? summary = null;
-        try
-        {
-            summary = LanguageModel.CheckCheckpoint(checkpoint, c, configPath);
-        }
-        catch (WeightsFormatException e)
-        {
-            problem = e.Message;
-        }
+        string? problem = Check(folder, c, tokenizer, checkpoint, out CheckpointSummary? summary);
         var outputs = new System.Text.Json.Nodes.JsonObject();
         foreach (string e in Examples)
         {
@@ -147,6 +133,31 @@ internal static class InspectCommand
         };
         o.WriteLine(report.ToJsonString(JsonOutput.Options));
         return problem == null ? 0 : CommandRunner.BadInput;
+    }
+
+    /// <summary>
+    /// What every other command would refuse, found without loading: the tensors against the config, the tokenizer's
+    /// ids against the vocabulary, and every stored value (NaN or infinite ones). The first problem, or null.
+    /// </summary>
+    private static string? Check(string folder, ModelConfig c, TextTokenizer tokenizer, SafetensorsCheckpoint checkpoint, out CheckpointSummary? summary)
+    {
+        string configPath = Path.Combine(folder, ModelConfig.FileName);
+        summary = null;
+        try
+        {
+            summary = LanguageModel.CheckCheckpoint(checkpoint, c, configPath);
+            LanguageModel.CheckTokenizer(tokenizer, c, configPath);
+        }
+        catch (InvalidInputException e)
+        {
+            return e.Message;
+        }
+        if (checkpoint.FirstNonFiniteValue() is { } bad)
+        {
+            return string.Create(CultureInfo.InvariantCulture,
+                $"{bad.Tensor.FilePath}: tensor {bad.Tensor.Name} holds {(float.IsNaN(bad.Value) ? "NaN" : bad.Value > 0 ? "+infinity" : "-infinity")} at element {bad.Index:N0} of {bad.Tensor.ElementCount:N0}; every forward pass would stop on it");
+        }
+        return null;
     }
 
     private static string Describe(Activation a) => a switch

@@ -77,14 +77,23 @@ public sealed class LanguageModel
         string configPath = Path.Combine(folder, ModelConfig.FileName);
         ModelConfig config = ModelConfig.Load(configPath);
         TextTokenizer tokenizer = TextTokenizer.OpenFolder(folder);
+        CheckTokenizer(tokenizer, config, configPath);
+        using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
+        ModelWeights weights = Gpt2.Gpt2Layout.Load(checkpoint, config, configPath, precision);
+        return new LanguageModel(folder, config, tokenizer, weights);
+    }
+
+    /// <summary>Checks that every id the tokenizer gives is one the model's vocabulary has.</summary>
+    /// <exception cref="TokenizerFileException">The tokenizer has ids beyond the config's vocab_size.</exception>
+    public static void CheckTokenizer(TextTokenizer tokenizer, ModelConfig config, string configPath)
+    {
+        ArgumentNullException.ThrowIfNull(tokenizer);
+        ArgumentNullException.ThrowIfNull(config);
         if (tokenizer.VocabularySize > config.VocabularySize)
         {
             throw new TokenizerFileException(tokenizer.Source,
                 $"the tokenizer has ids up to {tokenizer.VocabularySize - 1}; {configPath} has vocab_size {config.VocabularySize}");
         }
-        using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
-        ModelWeights weights = Gpt2.Gpt2Layout.Load(checkpoint, config, configPath, precision);
-        return new LanguageModel(folder, config, tokenizer, weights);
     }
 
     /// <summary>

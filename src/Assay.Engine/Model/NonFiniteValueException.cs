@@ -1,5 +1,4 @@
 using System.Globalization;
-using System.Numerics.Tensors;
 
 namespace Assay.Model;
 
@@ -38,19 +37,8 @@ public sealed class NonFiniteValueException : InvalidInputException
     /// <summary>The first non-finite value of <paramref name="values"/> (rows of <paramref name="width"/>), as a row index and value, or null.</summary>
     internal static (int Row, float Value)? Find(ReadOnlySpan<float> values, int width)
     {
-        // The vectorized maximum magnitude is NaN or infinite exactly when some value is: the common case costs one pass.
-        if (values.IsEmpty || float.IsFinite(TensorPrimitives.MaxMagnitude(values)))
-        {
-            return null;
-        }
-        for (int i = 0; i < values.Length; i++)
-        {
-            if (!float.IsFinite(values[i]))
-            {
-                return (i / width, values[i]);
-            }
-        }
-        return null;
+        int i = NonFinite.First(values);
+        return i < 0 ? null : (i / width, values[i]);
     }
 
     /// <summary>Checks the rows of a forward pass's stage; the row is a token of the batch laid end to end.</summary>

@@ -81,7 +81,7 @@ public sealed class SafetensorsCheckpoint : IDisposable
         return found;
     }
 
-    /// <summary>Converts a floating-point tensor to float32; see <see cref="SafetensorsFile.ReadFloat32"/>.</summary>
+    /// <summary>Converts a floating-point tensor to float32; see <see cref="SafetensorsFile.ReadFloat32(TensorInfo, Span{float})"/>.</summary>
     public void ReadFloat32(TensorInfo tensor, Span<float> destination)
     {
         ArgumentNullException.ThrowIfNull(tensor);
@@ -90,6 +90,33 @@ public sealed class SafetensorsCheckpoint : IDisposable
             throw new ArgumentException($"tensor '{tensor.Name}' is not in this checkpoint", nameof(tensor));
         }
         entry.File.ReadFloat32(tensor, destination);
+    }
+
+    /// <summary>
+    /// The first NaN or infinity stored in any tensor, in name order, or null: a scan of every value (converted in
+    /// blocks, so memory stays small), as <c>assay inspect</c> runs it. Loading does not scan; the forward pass checks
+    /// its outputs instead.
+    /// </summary>
+    public NonFiniteTensorValue? FirstNonFiniteValue()
+    {
+        const int Block = 1 << 20;
+        float[] buffer = new float[Block];
+        foreach (TensorInfo t in Tensors.Where(t => t.DType.IsParameterType()).OrderBy(t => t.Name, StringComparer.Ordinal))
+        {
+            SafetensorsFile file = _byName[t.Name].File;
+            for (long done = 0; done < t.ElementCount; done += Block)
+            {
+                int n = (int)Math.Min(Block, t.ElementCount - done);
+                file.ReadFloat32(t, done, buffer.AsSpan(0, n));
+                int i = NonFinite.First(buffer.AsSpan(0, n));
+                if (i >= 0)
+                {
+                    return new NonFiniteTensorValue(t, done + i, buffer[i]);
+                }
+            }
+            file.ReleasePages(t);
+        }
+        return null;
     }
 
     /// <summary>Lets the tensor's mapped pages go once it has been converted (see <see cref="SafetensorsFile"/>).</summary>

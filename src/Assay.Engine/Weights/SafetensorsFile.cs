@@ -142,8 +142,18 @@ public sealed unsafe class SafetensorsFile : IDisposable
                 $"dtype {tensor.DType.Name()} cannot hold model parameters; expected F32, F16 or BF16");
         }
 
+        ReadFloat32(tensor, 0, destination);
+    }
+
+    /// <summary>Converts <paramref name="destination"/>.Length elements of a checked floating-point tensor, from element <paramref name="first"/>.</summary>
+    internal void ReadFloat32(TensorInfo tensor, long first, Span<float> destination)
+    {
         ObjectDisposedException.ThrowIf(_view.SafeMemoryMappedViewHandle.IsClosed, this);
-        byte* src = _base + _dataStart + tensor.DataBegin;
+        if (first < 0 || first + destination.Length > tensor.ElementCount)
+        {
+            throw new ArgumentOutOfRangeException(nameof(first), first, $"elements {first} … {first + destination.Length} are outside tensor '{tensor.Name}'");
+        }
+        byte* src = _base + _dataStart + tensor.DataBegin + (first * tensor.DType.SizeInBytes());
         // Chunks keep every span under 2^31 bytes whatever the tensor's size.
         const int ChunkElements = 1 << 26;
         for (long done = 0; done < destination.Length; done += ChunkElements)

@@ -77,4 +77,34 @@ public sealed class NonFiniteTests : IDisposable
         Assert.DoesNotContain(lines, l => l.TrimStart().StartsWith("at ", StringComparison.Ordinal));
         Assert.DoesNotContain("NaN", await stdout, StringComparison.Ordinal);
     }
+
+    [Fact]
+    public void Inspect_refuses_a_nan_weight_and_tokenizer_ids_past_the_vocabulary()
+    {
+        // An F16 checkpoint with one NaN in block 0's attention weights: found, with the tensor and the element.
+        CheckpointSpec spec = FeatureExtractorTests.Spec with { DType = "F16" };
+        string nan = SyntheticCheckpoint.Write(spec, SyntheticCheckpoint.Parameters(spec).Select(p =>
+            p.Name == "h.0.attn.c_attn.weight" ? p with { Values = [.. p.Values.Select((v, i) => i == 1234 ? float.NaN : v)] } : p), _temp.File("nan"));
+        var o = new StringWriter();
+        Assert.Equal(2, Assay.Cli.Commands.InspectCommand.Run(nan, o));
+        Assert.Contains("check         FAILED: ", o.ToString(), StringComparison.Ordinal);
+        Assert.Contains("tensor h.0.attn.c_attn.weight holds NaN at element 1,234 of ", o.ToString(), StringComparison.Ordinal);
+        Assert.Equal(2, Assay.Cli.Commands.InspectCommand.RunJson(nan, new StringWriter()));
+
+        // The same model, finite: OK. Then a vocabulary id far past vocab_size, which LanguageModel.Open refuses too.
+        string good = Checkpoints.Folder(FeatureExtractorTests.Spec);
+        Assert.Equal(0, Assay.Cli.Commands.InspectCommand.Run(good, new StringWriter()));
+        string ids = _temp.File("ids");
+        Directory.CreateDirectory(ids);
+        foreach (string f in Directory.GetFiles(good))
+        {
+            File.Copy(f, Path.Combine(ids, Path.GetFileName(f)));
+        }
+        string vocab = Path.Combine(ids, "vocab.json");
+        File.WriteAllText(vocab, File.ReadAllText(vocab).TrimEnd().TrimEnd('}') + ", \"zzzz\": 99999999}");
+        o = new StringWriter();
+        Assert.Equal(2, Assay.Cli.Commands.InspectCommand.Run(ids, o));
+        Assert.Contains("the tokenizer has ids up to 99999999", o.ToString(), StringComparison.Ordinal);
+        Assert.Throws<Assay.Tokenization.TokenizerFileException>(() => LanguageModel.Open(ids));
+    }
 }
