@@ -70,14 +70,14 @@ internal static class CrossEntropyCommand
         {
             o.WriteLine(new System.Text.Json.Nodes.JsonObject
             {
-                ["texts"] = s.Texts, ["rejected"] = rejected, ["tokens"] = s.Tokens, ["bytes"] = s.Bytes, ["nats"] = s.Nats,
+                ["texts"] = s.Texts, ["rejected"] = rejected, ["tokens"] = s.Tokens, ["tokens_run"] = s.TokensRun, ["bytes"] = s.Bytes, ["nats"] = s.Nats,
                 ["nats_per_token"] = s.NatsPerToken, ["bits_per_byte"] = s.BitsPerByte, ["perplexity"] = s.Perplexity,
                 ["stride"] = stride ?? m.Config.ContextLength,
             }.ToJsonString(JsonOutput.Options));
             return 0;
         }
         o.WriteLine(string.Create(inv, $"texts          {s.Texts:N0} scored ({rejected:N0} rejected records skipped)"));
-        o.WriteLine(string.Create(inv, $"tokens         {s.Tokens:N0} predicted, {s.Bytes:N0} UTF-8 bytes"));
+        o.WriteLine(string.Create(inv, $"tokens         {s.Tokens:N0} predicted ({s.TokensRun:N0} run through the model, with each text's end-of-text context token{(s.TokensRun > s.Tokens + s.Texts ? " and the windows' overlap" : "")}), {s.Bytes:N0} UTF-8 bytes"));
         o.WriteLine(string.Create(inv, $"cross-entropy  {s.NatsPerToken:F4} nats/token, {s.BitsPerByte:F4} bits/byte, perplexity {s.Perplexity:F2}"));
         return 0;
     }

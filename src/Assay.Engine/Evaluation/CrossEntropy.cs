@@ -8,7 +8,9 @@ namespace Assay.Evaluation;
 /// <param name="Tokens">Tokens predicted (each text's tokens; the end-of-text token before each text is context only).</param>
 /// <param name="Bytes">UTF-8 bytes of the texts.</param>
 /// <param name="Nats">Total −log p over the predicted tokens, natural log.</param>
-public sealed record CrossEntropyResult(long Texts, long Tokens, long Bytes, double Nats)
+/// <param name="TokensRun">Tokens run through the model: the predicted ones, each text's end-of-text context token and
+/// the context that overlapping windows run again (what the progress line counts).</param>
+public sealed record CrossEntropyResult(long Texts, long Tokens, long Bytes, double Nats, long TokensRun)
 {
     /// <summary>Mean nats per token.</summary>
     public double NatsPerToken => Nats / Tokens;
@@ -70,6 +72,6 @@ public static class CrossEntropy
             }
             progress?.Report(new Features.ExtractionProgress(count, run, clock.Elapsed));
         }
-        return new CrossEntropyResult(count, tokens, bytes, nats);
+        return new CrossEntropyResult(count, tokens, bytes, nats, run);
     }
 }

@@ -30,6 +30,12 @@ public sealed class ProgressTests
         last = err.ToString().TrimEnd().Split('\n')[^1];
         Assert.StartsWith("assay: 30 texts, 100 % of input, ", last, StringComparison.Ordinal);
         Assert.EndsWith("input read", last, StringComparison.Ordinal);
+        // The progress line and the summary count the same tokens: tokens_run = predicted + one end-of-text token per
+        // text + the windows' overlap on texts longer than this fixture's context.
+        using var summary = System.Text.Json.JsonDocument.Parse(o.ToString());
+        long run = summary.RootElement.GetProperty("tokens_run").GetInt64();
+        Assert.True(run >= summary.RootElement.GetProperty("tokens").GetInt64() + 30, o.ToString());
+        Assert.Contains(string.Create(System.Globalization.CultureInfo.InvariantCulture, $", {run:N0} tokens, "), last, StringComparison.Ordinal);
     }
 
     [Fact]

@@ -38,6 +38,8 @@ public sealed class CrossEntropyTests
         Assert.Equal(numpy.RootElement.GetProperty("tokens").GetInt64(), r.Tokens);
         Assert.Equal(numpy.RootElement.GetProperty("nats").GetDouble(), r.Nats, 9);
         Assert.Equal(shortTexts.Sum(t => System.Text.Encoding.UTF8.GetByteCount(t)), r.Bytes);
+        // One window per short text: the predicted tokens and the end-of-text token before each.
+        Assert.Equal(r.Tokens + r.Texts, r.TokensRun);
         Assert.Equal(r.Nats / r.Tokens, r.NatsPerToken);
         Assert.Equal(r.NatsPerToken / Math.Log(2) * r.Tokens / r.Bytes, r.BitsPerByte, 12);
     }
@@ -58,6 +60,8 @@ public sealed class CrossEntropyTests
             Assert.Equal(Math.Log(300), r.NatsPerToken, 9);
             // Every token of every text is scored exactly once.
             Assert.Equal(tokens + Texts.Sum(t => m.Tokenizer.Encode(t).Length), r.Tokens);
+            // Windows after the first run at least one token of context again.
+            Assert.True(r.TokensRun > r.Tokens + r.Texts);
         }
     }
 

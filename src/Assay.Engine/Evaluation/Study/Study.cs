@@ -480,10 +480,12 @@ public static class Study
         ["tokens"] = r.Tokens,
         ["bytes"] = r.Bytes,
         ["nats"] = r.Nats,
+        ["tokens_run"] = r.TokensRun,
     };
 
     private static CrossEntropyResult ReadCrossEntropy(JsonObject o) =>
-        new(o["texts"]!.GetValue<long>(), o["tokens"]!.GetValue<long>(), o["bytes"]!.GetValue<long>(), o["nats"]!.GetValue<double>());
+        new(o["texts"]!.GetValue<long>(), o["tokens"]!.GetValue<long>(), o["bytes"]!.GetValue<long>(), o["nats"]!.GetValue<double>(),
+            o["tokens_run"]!.GetValue<long>());
 
     private static JsonObject WriteCell(StudyCell c, IReadOnlyList<string> classes) => new()
     {
