@@ -8,7 +8,7 @@ internal static class FileDigest
     /// <summary>Lower-case hexadecimal SHA-256 of the file at <paramref name="path"/>.</summary>
     public static string Sha256(string path)
     {
-        using FileStream file = File.OpenRead(path);
+        using FileStream file = InputFile.OpenRead(path);
         return Convert.ToHexStringLower(SHA256.HashData(file));
     }
 }

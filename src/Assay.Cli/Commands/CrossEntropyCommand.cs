@@ -22,7 +22,7 @@ internal static class CrossEntropyCommand
         };
         shared.AddInput(command, fields: false);
         shared.AddModel(command, prompted: false);
-        command.SetAction(r => CommandRunner.Run(() => Run(r.GetValue(model)!.FullName, r.GetValue(input)!.FullName, r.GetValue(stride),
+        command.SetAction(r => CommandRunner.Run(() => Run(r.GetValue(model)!.FullName, SharedOptions.InputPath(r.GetValue(input)!), r.GetValue(stride),
             ExtractCommand.Format(r.GetValue(shared.Format)!), r.GetValue(shared.TextField)!, Console.Out, r.GetValue(json), shared.Model(r), Console.Error)));
         return command;
     }
@@ -57,7 +57,7 @@ internal static class CrossEntropyCommand
             }
         }
         var printer = TextProgressPrinter.ForConsole(err ?? TextWriter.Null, total: null,
-            () => reader.TotalBytes == 0 ? 1 : Math.Min(1.0, (double)reader.BytesRead / reader.TotalBytes));
+            () => reader.Fraction);
         CrossEntropyResult s = CrossEntropy.Score(m, Texts(), stride, threads, printer);
         printer.End();
         CultureInfo inv = CultureInfo.InvariantCulture;

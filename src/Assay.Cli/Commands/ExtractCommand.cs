@@ -45,7 +45,7 @@ internal static class ExtractCommand
         {
             ModelRun run = shared.Model(r);
             var request = new Request(
-                r.GetValue(folder)!.FullName, r.GetValue(input)!.FullName, r.GetValue(output)!.FullName,
+                r.GetValue(folder)!.FullName, SharedOptions.InputPath(r.GetValue(input)!), r.GetValue(output)!.FullName,
                 r.GetValue(prompt)!, r.GetValue(features)!, r.GetValue(words)?.FullName, r.GetValue(completions)?.FullName,
                 r.GetValue(shared.Format)!, shared.Fields(r),
                 run.Keep, run.LeadingSpace, r.GetValue(precision)!, run.Weights, run.TokenBudget, r.GetValue(commit),
@@ -91,10 +91,7 @@ internal static class ExtractCommand
         }
         InputFormat format = Format(q.Format);
         FeaturePrecision precision = Spellings.Parse<FeaturePrecision>("--precision", q.Precision);
-        if (!File.Exists(q.Input))
-        {
-            throw new FileNotFoundException($"{q.Input}: no such input file", q.Input);
-        }
+        TextInputReader.Check(q.Input);
 
         RunShard? shard = Shard(q.Shard, Environment.GetEnvironmentVariable, err);
         LanguageModel model = LanguageModel.Open(q.Model, weights);
@@ -111,7 +108,14 @@ internal static class ExtractCommand
             Shard = shard,
         };
 
-        CheckSize(ExtractionRun.Estimate(model, q.Input, options), q, err);
+        if (ExtractionRun.Estimate(model, q.Input, options) is RunEstimate estimate)
+        {
+            CheckSize(estimate, q, err);
+        }
+        else
+        {
+            err.WriteLine($"assay: reading {q.Input} as a pipe: once, as it comes; no output estimate, no share of the input in the progress, and no --resume");
+        }
 
         var printer = new ProgressPrinter(err, interactive: !Console.IsErrorRedirected && ReferenceEquals(err, Console.Error),
             TimeSpan.FromSeconds(Math.Max(0.1, q.ProgressSeconds)));

@@ -66,7 +66,7 @@ internal static class FeatureOption
         string text;
         try
         {
-            text = new UTF8Encoding(false, throwOnInvalidBytes: true).GetString(File.ReadAllBytes(path));
+            text = new UTF8Encoding(false, throwOnInvalidBytes: true).GetString(InputFile.ReadAllBytes(path));
         }
         catch (DecoderFallbackException)
         {

@@ -95,27 +95,35 @@ internal sealed class ProgressPrinter(TextWriter err, bool interactive, TimeSpan
 
     protected override void Started(RunProgress value) => _firstFraction ??= value.InputFraction;
 
-    protected override string Format(RunProgress p) => string.Create(CultureInfo.InvariantCulture,
-        $"assay: {p.Accepted:N0} rows, {p.Read:N0} records read ({p.Rejected:N0} rejected), {p.InputFraction:P0} of input, {Rate(p.Tokens, p.Elapsed)}, {Clock(p.Elapsed)} elapsed, {Eta(p.InputFraction - (_firstFraction ?? 0), 1 - p.InputFraction, p.Elapsed.TotalSeconds)}");
+    protected override string Format(RunProgress p)
+    {
+        string head = string.Create(CultureInfo.InvariantCulture, $"assay: {p.Accepted:N0} rows, {p.Read:N0} records read ({p.Rejected:N0} rejected), ");
+        // From a pipe the input's size is unknown: no share of it and no ETA.
+        return p.InputFraction is double f
+            ? head + string.Create(CultureInfo.InvariantCulture, $"{f:P0} of input, {Rate(p.Tokens, p.Elapsed)}, {Clock(p.Elapsed)} elapsed, {Eta(f - (_firstFraction ?? 0), 1 - f, p.Elapsed.TotalSeconds)}")
+            : head + string.Create(CultureInfo.InvariantCulture, $"{Rate(p.Tokens, p.Elapsed)}, {Clock(p.Elapsed)} elapsed (input from a pipe: no ETA)");
+    }
 }
 
 /// <summary>
 /// Progress of texts through the model (zero-shot, cross-entropy): texts done of the total (or the share of the input
 /// read, when the total is not known up front), tokens/s and an ETA.
 /// </summary>
-internal sealed class TextProgressPrinter(TextWriter err, bool interactive, TimeSpan interval, long? total, Func<double>? inputFraction = null)
+internal sealed class TextProgressPrinter(TextWriter err, bool interactive, TimeSpan interval, long? total, Func<double?>? inputFraction = null)
     : ProgressLine<ExtractionProgress>(err, interactive, interval)
 {
     /// <summary>A printer on stderr: redrawn on a terminal, a line every 10 s otherwise.</summary>
-    public static TextProgressPrinter ForConsole(TextWriter err, long? total, Func<double>? inputFraction = null) =>
+    public static TextProgressPrinter ForConsole(TextWriter err, long? total, Func<double?>? inputFraction = null) =>
         new(err, !Console.IsErrorRedirected && ReferenceEquals(err, Console.Error), TimeSpan.FromSeconds(10), total, inputFraction);
 
     protected override string Format(ExtractionProgress p)
     {
         CultureInfo inv = CultureInfo.InvariantCulture;
-        double share = total is long n && n > 0 ? (double)p.Rows / n : inputFraction?.Invoke() ?? 0;
-        string count = total is long t ? string.Create(inv, $"{p.Rows:N0} of {t:N0} texts") : string.Create(inv, $"{p.Rows:N0} texts, {share:P0} of input");
-        return string.Create(inv, $"assay: {count}, {p.Tokens:N0} tokens, {Rate(p.Tokens, p.Elapsed)}, {Clock(p.Elapsed)} elapsed, {Eta(share, 1 - share, p.Elapsed.TotalSeconds)}");
+        double? share = total is long n && n > 0 ? (double)p.Rows / n : inputFraction?.Invoke();
+        string count = total is long t ? string.Create(inv, $"{p.Rows:N0} of {t:N0} texts")
+            : share is double f ? string.Create(inv, $"{p.Rows:N0} texts, {f:P0} of input") : string.Create(inv, $"{p.Rows:N0} texts");
+        string eta = share is double s ? Eta(s, 1 - s, p.Elapsed.TotalSeconds) : "input from a pipe: no ETA";
+        return string.Create(inv, $"assay: {count}, {p.Tokens:N0} tokens, {Rate(p.Tokens, p.Elapsed)}, {Clock(p.Elapsed)} elapsed, {eta}");
     }
 }
 

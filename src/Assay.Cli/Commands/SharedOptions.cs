@@ -36,6 +36,9 @@ internal sealed record ModelRun(string Weights = "float32", int Threads = 0, int
 /// <summary>The options every model command shares, made once so they read and default alike everywhere.</summary>
 internal sealed class SharedOptions
 {
+    /// <summary>A text input argument's path: "-" stays standard input (a file named "-" is ./-), anything else in full.</summary>
+    public static string InputPath(FileInfo input) => input.ToString() == Assay.Input.TextInputReader.StandardInput ? Assay.Input.TextInputReader.StandardInput : input.FullName;
+
     public Option<string> Weights { get; } = ModelOption.CreateWeights();
 
     public Option<int> Threads { get; } = new("--threads") { Description = "Worker threads; 0 = all cores. Outputs do not depend on it.", DefaultValueFactory = _ => 0 };

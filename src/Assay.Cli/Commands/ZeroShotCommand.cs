@@ -33,7 +33,7 @@ internal static class ZeroShotCommand
         command.SetAction(r => CommandRunner.Run(() =>
         {
             InputFields fields = shared.Fields(r, labelRequired: true);
-            return Run(r.GetValue(model)!.FullName, r.GetValue(input)!.FullName, r.GetValue(verbalizer)!.FullName,
+            return Run(r.GetValue(model)!.FullName, SharedOptions.InputPath(r.GetValue(input)!), r.GetValue(verbalizer)!.FullName,
                 r.GetValue(prompt)!, r.GetValue(full), ExtractCommand.Format(r.GetValue(shared.Format)!), fields.Text, fields.Label, Console.Out,
                 r.GetValue(output)?.FullName, r.GetValue(overwrite), shared.Model(r), fields.IdRequired ? fields.Id : null, Console.Error);
         }));

@@ -69,7 +69,7 @@ public sealed record ModelConfig
         {
             throw new ModelConfigException(path, null, "file not found; a model folder needs a config.json");
         }
-        JsonDocument doc = JsonInput.TryParse(File.ReadAllBytes(path), maxDepth: 32, out string problem)
+        JsonDocument doc = JsonInput.TryParse(InputFile.ReadAllBytes(path), maxDepth: 32, out string problem)
             ?? throw new ModelConfigException(path, null, problem);
         using (doc)
         {

@@ -19,39 +19,120 @@ public sealed class TextInputReader : IDisposable
     /// <summary>Deepest JSON nesting accepted on one line.</summary>
     private const int MaxJsonDepth = 64;
 
-    private readonly FileStream _stream;
+    /// <summary>The path that names standard input.</summary>
+    public const string StandardInput = "-";
+
+    private readonly Stream _source;
+    private readonly CountingStream _stream;
+    private readonly long? _length;
     private readonly InputFields _fields;
 
-    private TextInputReader(string path, InputFormat format, InputFields fields)
+    private TextInputReader(string path, InputFormat format, InputFields fields, Stream source, long? length)
     {
         Path = path;
         Format = format;
         _fields = fields;
-        _stream = new FileStream(path, FileMode.Open, FileAccess.Read, FileShare.Read, 1 << 16, FileOptions.SequentialScan);
+        _source = source;
+        _length = length;
+        _stream = new CountingStream(source, hash: length == null);
     }
 
-    /// <summary>The file.</summary>
+    /// <summary>The file (<see cref="StandardInput"/> for standard input).</summary>
     public string Path { get; }
 
     /// <summary>The format read (never Auto).</summary>
     public InputFormat Format { get; }
 
-    /// <summary>The file's size in bytes.</summary>
-    public long TotalBytes => _stream.Length;
+    /// <summary>True when the input is a pipe (standard input or a FIFO): read once, its size unknown until the end.</summary>
+    public bool IsStream => _length == null;
+
+    /// <summary>The file's size in bytes; for a stream, the bytes read so far.</summary>
+    public long TotalBytes => _length ?? _stream.Count;
 
     /// <summary>Bytes read so far (for progress; reads run ahead of the records returned by up to a buffer).</summary>
-    public long BytesRead => _stream.CanRead ? _stream.Position : TotalBytes;
+    public long BytesRead => _stream.Count;
 
-    /// <summary>Opens an input file.</summary>
+    /// <summary>The share of the file read, 0 … 1; null for a stream, whose size is not known.</summary>
+    public double? Fraction => _length is long n ? (n == 0 ? 1 : Math.Min(1.0, (double)_stream.Count / n)) : null;
+
+    /// <summary>A stream's SHA-256 (lower-case hexadecimal) over every byte read; complete once the records are read to the end.</summary>
+    /// <exception cref="InvalidOperationException">The input is a file (hash it with its path).</exception>
+    public string StreamSha256() => _stream.Sha256();
+
+    /// <summary>
+    /// Opens an input: a regular file, a FIFO, or <see cref="StandardInput"/>. A FIFO or standard input is read once
+    /// as it comes (no seeking: its runs cannot resume, and its progress has no share of the input).
+    /// </summary>
     /// <exception cref="FileNotFoundException">The file does not exist.</exception>
+    /// <exception cref="InputFileException">The path is a folder, a device, a socket or a symbolic link loop.</exception>
+    /// <exception cref="TextInputException">The input starts with a UTF-16 byte-order mark.</exception>
     public static TextInputReader Open(string path, InputFormat format = InputFormat.Auto, InputFields? fields = null)
     {
         ArgumentNullException.ThrowIfNull(path);
-        if (!File.Exists(path))
+        format = format == InputFormat.Auto ? FormatOf(path) : format;
+        fields ??= new InputFields();
+        TextInputReader reader;
+        if (path == StandardInput)
+        {
+            reader = new TextInputReader(path, format, fields, Console.OpenStandardInput(1 << 16), null);
+        }
+        else if (Check(path))
+        {
+            reader = new TextInputReader(path, format, fields, new FileStream(path, FileMode.Open, FileAccess.Read, FileShare.Read, 1 << 16), null);
+        }
+        else
+        {
+            var file = new FileStream(path, FileMode.Open, FileAccess.Read, FileShare.Read, 1 << 16, FileOptions.SequentialScan);
+            reader = new TextInputReader(path, format, fields, file, file.Length);
+        }
+        try
+        {
+            reader.RefuseUtf16();
+            return reader;
+        }
+        catch
+        {
+            reader.Dispose();
+            throw;
+        }
+    }
+
+    /// <summary>Refuses what cannot be an input (nothing there, a folder, a device, a socket, a link loop); true for a pipe.</summary>
+    /// <exception cref="FileNotFoundException">Nothing is there.</exception>
+    /// <exception cref="InputFileException">A folder, a device, a socket or a symbolic link loop.</exception>
+    public static bool Check(string path)
+    {
+        ArgumentNullException.ThrowIfNull(path);
+        if (path == StandardInput)
+        {
+            return true;
+        }
+        if (!File.Exists(path) && !Directory.Exists(path) && !IsLink(path))
         {
             throw new FileNotFoundException($"{path}: no such input file", path);
         }
-        return new TextInputReader(path, format == InputFormat.Auto ? FormatOf(path) : format, fields ?? new InputFields());
+        return InputFile.NotRegular(path) switch
+        {
+            null => false,
+            InputFile.Fifo => true,
+            string what => throw new InputFileException(path, $"{path}: {what}; an input is a regular file, a FIFO or - (standard input)"),
+        };
+    }
+
+    /// <summary>True when <paramref name="path"/> is standard input or a FIFO, which can be read only once.</summary>
+    public static bool IsPipe(string path) =>
+        path == StandardInput || ((File.Exists(path) || IsLink(path)) && InputFile.NotRegular(path) == InputFile.Fifo);
+
+    private static bool IsLink(string path) => new FileInfo(path).LinkTarget != null;
+
+    /// <summary>UTF-16 text read as UTF-8 would be NUL-riddled records: refused by its byte-order mark.</summary>
+    private void RefuseUtf16()
+    {
+        ReadOnlySpan<byte> start = _stream.Peek(2);
+        if (start is [0xFF, 0xFE] or [0xFE, 0xFF])
+        {
+            throw new TextInputException(Path, 0, $"UTF-16 text (byte-order mark {start[0]:X2} {start[1]:X2}); inputs are UTF-8: convert it (e.g. iconv -f UTF-16 -t UTF-8)");
+        }
     }
 
     /// <summary>The format a file name implies.</summary>
@@ -73,7 +154,11 @@ public sealed class TextInputReader : IDisposable
     };
 
     /// <inheritdoc/>
-    public void Dispose() => _stream.Dispose();
+    public void Dispose()
+    {
+        _stream.Dispose();
+        _source.Dispose();
+    }
 
     private IEnumerable<InputRecord> LineRecords(bool json)
     {

@@ -15,7 +15,7 @@ public sealed record ModelFile(string Name, long Bytes, string Sha256)
         var files = new List<ModelFile>();
         foreach (string path in Directory.GetFiles(folder).Order(StringComparer.Ordinal))
         {
-            using FileStream stream = File.OpenRead(path);
+            using FileStream stream = InputFile.OpenRead(path);
             byte[] hash = SHA256.HashData(stream);
             files.Add(new ModelFile(Path.GetFileName(path), stream.Length, Convert.ToHexStringLower(hash)));
         }

@@ -63,7 +63,7 @@ public static class WeightsManifest
             {
                 ["name"] = Path.GetFileNameWithoutExtension(entryPath),
                 ["family"] = "GPT-2",
-                ["architecture"] = JsonNode.Parse(File.ReadAllBytes(configPath)),
+                ["architecture"] = JsonNode.Parse(InputFile.ReadAllBytes(configPath)),
                 ["parameter_count"] = config.ParameterCount,
                 ["parameter_count_source"] = "counted from the architecture, tied head counted once",
                 ["licence"] = licence ?? "unknown: record it with --licence",
@@ -80,8 +80,14 @@ public static class WeightsManifest
         {
             entry["provenance"] = provenance;
         }
+        var outside = new Dictionary<string, string>(StringComparer.Ordinal);
+        List<ModelFile> described = Describe(modelFolder, outside);
+        if (outside.Count > 0)
+        {
+            throw new ManifestException(entryPath, $"cannot pin {modelFolder}: {outside.Values.First()}; pin a folder that holds its own files");
+        }
         var files = new JsonArray();
-        foreach (ModelFile f in ModelFile.Describe(modelFolder))
+        foreach (ModelFile f in described)
         {
             files.Add(new JsonObject { ["name"] = f.Name, ["bytes"] = f.Bytes, ["sha256"] = f.Sha256 });
         }
@@ -91,8 +97,10 @@ public static class WeightsManifest
     }
 
     /// <summary>
-    /// Compares a folder with a pinned entry: every pinned file present with its size and SHA-256, and no other file.
-    /// Returns one line per difference, naming the file and both values; none when the folder matches.
+    /// Compares a folder with a pinned entry: every pinned file present with its size and SHA-256, and no other file,
+    /// in the folder and its subfolders. A file or folder that a symbolic link takes outside the model folder is a
+    /// difference too (its bytes are not the folder's). Returns one line per difference, naming the file and both
+    /// values; none when the folder matches.
     /// </summary>
     /// <exception cref="ManifestException">The entry is malformed or not pinned.</exception>
     public static IReadOnlyList<string> Verify(string modelFolder, string entryPath)
@@ -108,8 +116,9 @@ public static class WeightsManifest
         {
             throw new DirectoryNotFoundException($"{modelFolder}: no such model folder");
         }
-        var actual = ModelFile.Describe(modelFolder).ToDictionary(f => f.Name, StringComparer.Ordinal);
-        var problems = new List<string>();
+        var outside = new Dictionary<string, string>(StringComparer.Ordinal);
+        var actual = Describe(modelFolder, outside).ToDictionary(f => f.Name, StringComparer.Ordinal);
+        var problems = new List<string>(outside.Values);
         var expectedNames = new HashSet<string>(StringComparer.Ordinal);
         foreach (JsonNode? node in pinned)
         {
@@ -117,6 +126,10 @@ public static class WeightsManifest
             long bytes = node["bytes"]?.GetValue<long>() ?? throw new ManifestException(entryPath, $"pinned file {name} has no size");
             string sha = node["sha256"]?.GetValue<string>() ?? throw new ManifestException(entryPath, $"pinned file {name} has no sha256");
             expectedNames.Add(name);
+            if (outside.ContainsKey(name))
+            {
+                continue;
+            }
             if (!actual.TryGetValue(name, out ModelFile? f))
             {
                 problems.Add($"{Path.Combine(modelFolder, name)}: missing (pinned: {bytes.ToString("N0", CultureInfo.InvariantCulture)} bytes, sha256 {sha})");
@@ -133,6 +146,57 @@ public static class WeightsManifest
         }
         return problems;
     }
+
+    /// <summary>Deepest subfolder a manifest walks into.</summary>
+    private const int MaxDepth = 16;
+
+    /// <summary>
+    /// Every file in <paramref name="folder"/> and its subfolders (names relative, '/'-separated, ordinal order),
+    /// hashed; a link whose target lies outside the folder is not followed but told to <paramref name="outside"/>.
+    /// </summary>
+    private static List<ModelFile> Describe(string folder, Dictionary<string, string> outside)
+    {
+        string root = Path.TrimEndingDirectorySeparator(Path.GetFullPath(folder));
+        string realRoot = Path.TrimEndingDirectorySeparator(Directory.ResolveLinkTarget(root, returnFinalTarget: true)?.FullName ?? root);
+        var files = new List<ModelFile>();
+        Walk(root, "", 0);
+        return [.. files.OrderBy(f => f.Name, StringComparer.Ordinal)];
+
+        void Walk(string path, string prefix, int depth)
+        {
+            foreach (string entry in Directory.EnumerateFileSystemEntries(path).Order(StringComparer.Ordinal))
+            {
+                string name = prefix + Path.GetFileName(entry);
+                string target;
+                try
+                {
+                    target = File.ResolveLinkTarget(entry, returnFinalTarget: true)?.FullName ?? entry;
+                }
+                catch (IOException e)
+                {
+                    throw new InputFileException(entry, $"{entry}: a symbolic link loop (the links never reach a file: {e.Message.TrimEnd('.')})");
+                }
+                if (target != entry && !Inside(Path.GetFullPath(target), realRoot) && !Inside(Path.GetFullPath(target), root))
+                {
+                    outside[name] = $"{entry}: a link to {target}, outside the model folder";
+                    continue;
+                }
+                if (Directory.Exists(entry))
+                {
+                    if (depth + 1 > MaxDepth)
+                    {
+                        throw new InputFileException(entry, string.Create(CultureInfo.InvariantCulture, $"{entry}: more than {MaxDepth} folders deep (a folder linked into itself?)"));
+                    }
+                    Walk(entry, name + "/", depth + 1);
+                    continue;
+                }
+                using FileStream stream = InputFile.OpenRead(entry);
+                files.Add(new ModelFile(name, stream.Length, Convert.ToHexStringLower(System.Security.Cryptography.SHA256.HashData(stream))));
+            }
+        }
+    }
+
+    private static bool Inside(string path, string root) => path.StartsWith(root + Path.DirectorySeparatorChar, StringComparison.Ordinal);
 
     /// <summary>The parameters an architecture implies, as the manifest lists them.</summary>
     private static JsonArray Inventory(ModelConfig config)
@@ -173,7 +237,7 @@ public static class WeightsManifest
         {
             throw new ManifestException(entryPath, "no such manifest entry");
         }
-        using JsonDocument? doc = JsonInput.TryParse(File.ReadAllBytes(entryPath), maxDepth: 16, out string problem);
+        using JsonDocument? doc = JsonInput.TryParse(InputFile.ReadAllBytes(entryPath), maxDepth: 16, out string problem);
         if (doc == null || doc.RootElement.ValueKind != JsonValueKind.Object)
         {
             throw new ManifestException(entryPath, doc == null ? problem : "expected a JSON object");

@@ -22,9 +22,12 @@ public static class ExtractionRun
     /// <summary>2: values spelled as on the command line (jsonl, head), JSON written unescaped (&lt;f4, +).</summary>
     private const int FormatVersion = 2;
 
-    /// <summary>What an extraction of <paramref name="inputPath"/> with <paramref name="options"/> will write (see <see cref="RunEstimate"/>).</summary>
+    /// <summary>
+    /// What an extraction of <paramref name="inputPath"/> with <paramref name="options"/> will write (see
+    /// <see cref="RunEstimate"/>); null for a pipe, which can be read only once.
+    /// </summary>
     /// <exception cref="ArgumentException">The options do not fit the model (as <see cref="Execute"/> would say).</exception>
-    public static RunEstimate Estimate(LanguageModel model, string inputPath, RunOptions options)
+    public static RunEstimate? Estimate(LanguageModel model, string inputPath, RunOptions options)
     {
         ArgumentNullException.ThrowIfNull(model);
         ArgumentNullException.ThrowIfNull(inputPath);
@@ -33,9 +36,13 @@ public static class ExtractionRun
         OutputFile[] outputs = [.. extractor.Outputs.Select(o => new OutputFile(o, options.Precision))];
         long[] bytes = [.. outputs.Select(o => (long)o.Output.Width * NpyFormat.ElementBytes(o.Descr))];
         int largest = Array.IndexOf(bytes, bytes.Max());
+        if (TextInputReader.IsPipe(inputPath))
+        {
+            return null;
+        }
         long lines = 0;
         bool endsInLineBreak = true;
-        using (var file = new FileStream(inputPath, FileMode.Open, FileAccess.Read, FileShare.Read, 1 << 16, FileOptions.SequentialScan))
+        using (FileStream file = InputFile.OpenRead(inputPath, 1 << 16, FileOptions.SequentialScan))
         {
             byte[] buffer = new byte[1 << 16];
             int n;
@@ -73,6 +80,11 @@ public static class ExtractionRun
             throw new ArgumentException("resume and overwrite exclude each other: resume continues the run in the folder, overwrite replaces it", nameof(options));
         }
         var extractor = new FeatureExtractor(model, options.Extraction);
+        if (options.Resume && TextInputReader.IsPipe(inputPath))
+        {
+            // Said before the pipe is opened, which would wait for its writer.
+            throw new ArgumentException($"{inputPath} is a pipe, read once: a run from it cannot resume; start it over with --overwrite, or extract from a file", nameof(options));
+        }
         using TextInputReader reader = TextInputReader.Open(inputPath, options.Format, options.Fields);
         var outputs = extractor.Outputs.Select(o => new OutputFile(o, options.Precision)).ToArray();
         JsonObject settings = Settings(model, extractor, reader, options, outputs);
@@ -186,7 +198,7 @@ public static class ExtractionRun
                 state.Write(outputFolder);
                 reporter?.StartGroup(0, 0);
                 progress?.Report(new RunProgress(state.Accepted, state.Read, state.Rejected, sessionTokens,
-                    reader.TotalBytes == 0 ? 1 : Math.Min(1.0, (double)reader.BytesRead / reader.TotalBytes), clock.Elapsed));
+                    reader.Fraction, clock.Elapsed));
             }
 
             UpdateSession(session, clock.Elapsed, state.Accepted - resumedAt, sessionTokens);
@@ -196,6 +208,12 @@ public static class ExtractionRun
                 // An empty run is a mistake (a misspelled field, the wrong file), never a finished result: the folder
                 // stays unfinished, with the rejects to look at.
                 throw NothingAccepted(reader.Path, state, firstRejections, outputFolder);
+            }
+            if (reader.IsStream)
+            {
+                JsonObject input = state.Settings["input"]!.AsObject();
+                input["bytes"] = reader.TotalBytes;
+                input["sha256"] = reader.StreamSha256();
             }
             Finish(outputFolder, state, outputs, shard, inputRows);
             return state.Summary(alreadyComplete: false, clock.Elapsed) with { ResumedAt = resumedAt };
@@ -244,8 +262,10 @@ public static class ExtractionRun
             ["input"] = new JsonObject
             {
                 ["file"] = Path.GetFileName(reader.Path),
-                ["bytes"] = reader.TotalBytes,
-                ["sha256"] = FileDigest.Sha256(reader.Path),
+                // A pipe's size and hash are known only at its end: the record gets them when the run finishes.
+                ["bytes"] = reader.IsStream ? null : reader.TotalBytes,
+                ["sha256"] = reader.IsStream ? null : FileDigest.Sha256(reader.Path),
+                ["stream"] = reader.IsStream,
                 ["format"] = Spellings.Of(reader.Format),
                 ["text_field"] = options.Fields.Text,
                 ["id_field"] = options.Fields.Id,
@@ -333,7 +353,7 @@ public static class ExtractionRun
 
         public void Report(ExtractionProgress value) =>
             progress.Report(new RunProgress(_acceptedBefore + value.Rows, state.Read + _groupRecords, state.Rejected + _groupRejected, value.Tokens,
-                reader.TotalBytes == 0 ? 1 : Math.Min(1.0, (double)reader.BytesRead / reader.TotalBytes), clock.Elapsed));
+                reader.Fraction, clock.Elapsed));
     }
 
     /// <summary>An output array and how it is stored.</summary>

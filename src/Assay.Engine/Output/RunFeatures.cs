@@ -54,7 +54,7 @@ public sealed record RunFeatures(double[] Values, int Rows, int Width, IReadOnly
         }
         string stem = Resolve(runFolder, feature);
         string path = Path.Combine(runFolder, stem + ".npy");
-        byte[] bytes = File.ReadAllBytes(path);
+        byte[] bytes = InputFile.ReadAllBytes(path, Array.MaxLength);
         (string descr, long rowCount, int width, int offset) = NpyFormat.ReadHeader(bytes)
             ?? throw new RunFolderException(runFolder, $"{path}: not a 2-D .npy file of float32, float16 or int32");
         int rows = checked((int)rowCount);

@@ -146,7 +146,7 @@ public static class RunMerge
             {
                 string path = Path.Combine(s.Folder, file);
                 long expected = NpyFormat.HeaderBytes + (s.Accepted * width * ElementBytes(path, dtype));
-                long actual = File.Exists(path) ? new FileInfo(path).Length : -1;
+                long actual = File.Exists(path) ? InputFile.Length(path) : -1;
                 if (actual != expected)
                 {
                     throw new RunFolderException(s.Folder, string.Create(CultureInfo.InvariantCulture,
@@ -177,7 +177,7 @@ public static class RunMerge
         {
             for (int s = 0; s < shards.Length; s++)
             {
-                sources[s] = new FileStream(Path.Combine(shards[s].Folder, file), FileMode.Open, FileAccess.Read, FileShare.Read, 1 << 20, FileOptions.SequentialScan);
+                sources[s] = InputFile.OpenRead(Path.Combine(shards[s].Folder, file), 1 << 20, FileOptions.SequentialScan);
                 sources[s].Seek(NpyFormat.HeaderBytes, SeekOrigin.Begin);
             }
             using NpyAppender merged = NpyAppender.Create(target, dtype, width);
@@ -215,7 +215,7 @@ public static class RunMerge
             for (int s = 0; s < shards.Length; s++)
             {
                 string path = Path.Combine(shards[s].Folder, RunFolder.RowsFile);
-                streams[s] = File.OpenRead(path);
+                streams[s] = InputFile.OpenRead(path);
                 byte[] h = HeaderLine(streams[s]);
                 readers[s] = CsvReader.Create(streams[s], new CsvReaderOptions { HasHeader = false, MaxRecordSize = 4 << 20 }, leaveOpen: true);
                 if (header != null && !header.AsSpan().SequenceEqual(h))
@@ -364,7 +364,7 @@ public static class RunMerge
             }
             try
             {
-                return JsonNode.Parse(File.ReadAllBytes(timingPath))?["seconds"]?.GetValue<double>();
+                return JsonNode.Parse(InputFile.ReadAllBytes(timingPath))?["seconds"]?.GetValue<double>();
             }
             catch (Exception e) when (e is JsonException or InvalidOperationException or FormatException)
             {

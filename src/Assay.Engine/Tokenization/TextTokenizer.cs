@@ -1,3 +1,4 @@
+using System.Globalization;
 using System.Text;
 using System.Text.Json;
 using System.Text.RegularExpressions;
@@ -91,7 +92,7 @@ public sealed partial class TextTokenizer
     /// <summary>Byte-level BPE from the "model" section (type "BPE", "vocab", "merges") of a JSON tokenizer definition.</summary>
     public static TextTokenizer FromDefinition(string path)
     {
-        JsonDocument doc = JsonInput.TryParse(File.ReadAllBytes(path), maxDepth: 64, out string problem)
+        JsonDocument doc = JsonInput.TryParse(InputFile.ReadAllBytes(path, InputFile.TokenizerFileBytes), maxDepth: 64, out string problem)
             ?? throw new TokenizerFileException(path, problem);
         using (doc)
         {
@@ -182,7 +183,7 @@ public sealed partial class TextTokenizer
 
     private static Dictionary<string, int> ReadVocabulary(string path)
     {
-        JsonDocument doc = JsonInput.TryParse(File.ReadAllBytes(path), maxDepth: 4, out string problem)
+        JsonDocument doc = JsonInput.TryParse(InputFile.ReadAllBytes(path, InputFile.TokenizerFileBytes), maxDepth: 4, out string problem)
             ?? throw new TokenizerFileException(path, problem);
         using (doc)
         {
@@ -224,6 +225,13 @@ public sealed partial class TextTokenizer
     {
         var merges = new List<string>();
         int lineNumber = 0;
+        using (FileStream file = InputFile.OpenRead(path))
+        {
+            if (file.Length > InputFile.TokenizerFileBytes)
+            {
+                throw new TokenizerFileException(path, string.Create(CultureInfo.InvariantCulture, $"{file.Length:N0} bytes, more than the {InputFile.TokenizerFileBytes:N0} bytes a merges file may have"));
+            }
+        }
         using IEnumerator<string> lines = File.ReadLines(path, new UTF8Encoding(false, throwOnInvalidBytes: true)).GetEnumerator();
         while (true)
         {

@@ -197,7 +197,7 @@ public sealed class SafetensorsCheckpoint : IDisposable
 
     private static Dictionary<string, string> ReadWeightMap(string indexPath)
     {
-        JsonDocument doc = JsonInput.TryParse(File.ReadAllBytes(indexPath), maxDepth: 8, out string problem)
+        JsonDocument doc = JsonInput.TryParse(InputFile.ReadAllBytes(indexPath), maxDepth: 8, out string problem)
             ?? throw new WeightsFormatException(indexPath, null, problem);
         using (doc)
         {

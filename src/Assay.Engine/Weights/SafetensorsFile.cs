@@ -68,14 +68,16 @@ public sealed unsafe class SafetensorsFile : IDisposable
     public static SafetensorsFile Open(string path)
     {
         ArgumentNullException.ThrowIfNull(path);
-        long length = new FileInfo(path).Length;
+        FileStream stream = InputFile.OpenRead(path);
+        long length = stream.Length;
         if (length < 8)
         {
+            stream.Dispose();
             throw new WeightsFormatException(path, null,
                 $"file is {length} bytes long; a safetensors file starts with an 8-byte header length");
         }
 
-        var map = MemoryMappedFile.CreateFromFile(path, FileMode.Open, null, 0, MemoryMappedFileAccess.Read);
+        var map = MemoryMappedFile.CreateFromFile(stream, null, 0, MemoryMappedFileAccess.Read, HandleInheritability.None, leaveOpen: false);
         MemoryMappedViewAccessor? view = null;
         bool acquired = false;
         try

@@ -10,7 +10,7 @@ namespace Assay.Tests.Cli;
 
 public sealed class ExtractCommandTests
 {
-    private static ExtractCommand.Request Request(string input, string output, string features = "hidden,cmean", bool resume = false,
+    internal static ExtractCommand.Request Request(string input, string output, string features = "hidden,cmean", bool resume = false,
         string prompt = "{text} It is a kind of", int commitRows = 8, string? words = null, string weights = "float32") => new(
         Checkpoints.Folder(FeatureExtractorTests.Spec), input, output, prompt, features, words, null, "auto", new InputFields(),
         "head", LeadingSpace: true, "float32", weights, TokenBudget: 4096, commitRows, Threads: 0, resume, Overwrite: false, Strict: false,
@@ -174,9 +174,9 @@ public sealed class ExtractCommandTests
     }
 
     /// <summary>Starts the assay executable of the test's build with its output streams redirected.</summary>
-    internal static Process StartChild(string[] args)
+    internal static Process StartChild(string[] args, bool standardInput = false)
     {
-        var psi = new ProcessStartInfo("dotnet") { RedirectStandardOutput = true, RedirectStandardError = true };
+        var psi = new ProcessStartInfo("dotnet") { RedirectStandardOutput = true, RedirectStandardError = true, RedirectStandardInput = standardInput };
         psi.ArgumentList.Add(Path.Combine(AppContext.BaseDirectory, "assay.dll"));
         foreach (string a in args)
         {

@@ -160,6 +160,9 @@ public sealed class LinearProbe
         return p;
     }
 
+    /// <summary>The largest probe file read (4,096 features × 1,000 classes as JSON text is about 80 MB).</summary>
+    private const long ProbeFileBytes = 1L << 30;
+
     /// <summary>Reads a probe saved with <see cref="ToJson"/>.</summary>
     /// <exception cref="ArgumentException">The file is not such a probe (the message names it).</exception>
     public static LinearProbe FromJson(string path) => FromJson(path, Parse(path));
@@ -170,7 +173,7 @@ public sealed class LinearProbe
     {
         try
         {
-            return JsonNode.Parse(File.ReadAllBytes(path))!.AsObject();
+            return JsonNode.Parse(InputFile.ReadAllBytes(path, ProbeFileBytes))!.AsObject();
         }
         catch (Exception e) when (e is System.Text.Json.JsonException or InvalidOperationException or NullReferenceException)
         {

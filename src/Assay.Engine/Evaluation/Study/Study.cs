@@ -360,7 +360,7 @@ public static class Study
     {
         try
         {
-            return JsonNode.Parse(File.ReadAllBytes(path));
+            return JsonNode.Parse(InputFile.ReadAllBytes(path));
         }
         catch (JsonException)
         {

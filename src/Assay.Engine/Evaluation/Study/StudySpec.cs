@@ -86,7 +86,7 @@ public sealed partial record StudySpec
         JsonObject o;
         try
         {
-            o = JsonNode.Parse(File.ReadAllBytes(path), documentOptions: new JsonDocumentOptions { CommentHandling = JsonCommentHandling.Skip })?.AsObject()
+            o = JsonNode.Parse(InputFile.ReadAllBytes(path), documentOptions: new JsonDocumentOptions { CommentHandling = JsonCommentHandling.Skip })?.AsObject()
                 ?? throw new StudyException(path, "expected a JSON object");
         }
         catch (Exception e) when (e is JsonException or InvalidOperationException)

@@ -46,7 +46,7 @@ public sealed class Verbalizer
         string text;
         try
         {
-            text = new UTF8Encoding(false, throwOnInvalidBytes: true).GetString(File.ReadAllBytes(path));
+            text = new UTF8Encoding(false, throwOnInvalidBytes: true).GetString(InputFile.ReadAllBytes(path));
         }
         catch (DecoderFallbackException)
         {

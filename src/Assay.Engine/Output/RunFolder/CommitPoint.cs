@@ -34,7 +34,7 @@ internal sealed class CommitPoint
         JsonObject o;
         try
         {
-            o = (JsonObject)JsonNode.Parse(File.ReadAllBytes(Path.Combine(folder, RunFolder.ProgressFile)))!;
+            o = (JsonObject)JsonNode.Parse(InputFile.ReadAllBytes(Path.Combine(folder, RunFolder.ProgressFile)))!;
         }
         catch (Exception e) when (e is JsonException or InvalidCastException or NullReferenceException)
         {

@@ -65,10 +65,10 @@ public sealed class FolderLock : IDisposable
     {
         try
         {
-            string text = File.ReadAllText(Path.Combine(folder, WriterFile)).Trim();
+            string text = System.Text.Encoding.UTF8.GetString(InputFile.ReadAllBytes(Path.Combine(folder, WriterFile), 4096)).Trim();
             return text.Length is > 0 and <= 200 ? text : "another process";
         }
-        catch (IOException)
+        catch (Exception e) when (e is IOException or InvalidInputException)
         {
             return "another process";
         }

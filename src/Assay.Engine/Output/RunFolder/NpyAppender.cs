@@ -44,6 +44,7 @@ internal sealed class NpyAppender : IDisposable
     /// <exception cref="IOException">The file is shorter than the committed rows: it was changed since.</exception>
     public static NpyAppender Reopen(string path, string descr, int width, long rows)
     {
+        InputFile.Check(path);
         var file = new FileStream(path, FileMode.Open, FileAccess.ReadWrite, FileShare.Read);
         var npy = new NpyAppender(path, file, descr, width, NpyFormat.ElementBytes(descr));
         long length = NpyFormat.HeaderBytes + (rows * npy.RowBytes);

@@ -55,7 +55,7 @@ public sealed class RunRecord
         {
             throw new RunFolderException(folder, $"holds no finished run (no {RunFolder.RecordFile})");
         }
-        byte[] bytes = File.ReadAllBytes(path);
+        byte[] bytes = InputFile.ReadAllBytes(path);
         try
         {
             var record = (JsonObject)JsonNode.Parse(bytes)!;

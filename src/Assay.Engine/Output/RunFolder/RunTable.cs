@@ -44,6 +44,7 @@ internal sealed class RunTable
             });
             return created;
         }
+        InputFile.Check(path);
         var file = new FileStream(path, FileMode.Open, FileAccess.ReadWrite, FileShare.Read);
         if (file.Length < committedBytes)
         {
