@@ -17,15 +17,78 @@ internal static class JsonInput
             problem = "not valid UTF-8";
             return null;
         }
+        JsonDocument document;
         try
         {
-            problem = "";
-            return JsonDocument.Parse(utf8, new JsonDocumentOptions { MaxDepth = maxDepth });
+            // A key given twice is refused: which of the two values counts would be a guess.
+            document = JsonDocument.Parse(utf8, new JsonDocumentOptions { MaxDepth = maxDepth, AllowDuplicateProperties = false });
         }
         catch (JsonException e)
         {
             problem = $"not well-formed JSON ({e.Message})";
             return null;
         }
+        if (LoneSurrogate(document.RootElement, "") is string where)
+        {
+            document.Dispose();
+            problem = $"{where} holds a lone surrogate escape (a \\uD800–\\uDFFF escape without its pair), which is not text";
+            return null;
+        }
+        problem = "";
+        return document;
     }
+
+    /// <summary>
+    /// Where a string or key holds an escaped surrogate without its pair (valid JSON, but no text: reading it throws
+    /// InvalidOperationException); null when there is none.
+    /// </summary>
+    private static string? LoneSurrogate(JsonElement e, string path)
+    {
+        switch (e.ValueKind)
+        {
+            case JsonValueKind.String:
+                try
+                {
+                    _ = e.GetString();
+                    return null;
+                }
+                catch (InvalidOperationException)
+                {
+                    return path.Length == 0 ? "the value" : path;
+                }
+            case JsonValueKind.Object:
+                foreach (JsonProperty p in e.EnumerateObject())
+                {
+                    string name;
+                    try
+                    {
+                        name = p.Name;
+                    }
+                    catch (InvalidOperationException)
+                    {
+                        return (path.Length == 0 ? "" : path + ": ") + "a key";
+                    }
+                    if (LoneSurrogate(p.Value, path.Length == 0 ? $"field \"{Cut(name)}\"" : $"{path}.{Cut(name)}") is string inner)
+                    {
+                        return inner;
+                    }
+                }
+                return null;
+            case JsonValueKind.Array:
+                int i = 0;
+                foreach (JsonElement item in e.EnumerateArray())
+                {
+                    if (LoneSurrogate(item, $"{(path.Length == 0 ? "element " : path)}[{i}]") is string inner)
+                    {
+                        return inner;
+                    }
+                    i++;
+                }
+                return null;
+            default:
+                return null;
+        }
+    }
+
+    private static string Cut(string name) => name.Length <= 40 ? name : name[..40] + "…";
 }

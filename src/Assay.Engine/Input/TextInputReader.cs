@@ -13,8 +13,17 @@ namespace Assay.Input;
 /// </summary>
 public sealed class TextInputReader : IDisposable
 {
-    /// <summary>The longest record accepted, in bytes; longer ones are rejected (CSV: the file is refused).</summary>
+    /// <summary>
+    /// The longest record accepted, in bytes (a line without its line break; a CSV/TSV record's field text); longer
+    /// ones are rejected and the run goes on.
+    /// </summary>
     public const int MaxRecordBytes = 1 << 20;
+
+    /// <summary>
+    /// A CSV/TSV record whose raw bytes grow past this before it ends stops the reading: it is almost always a quote
+    /// never closed, which would otherwise swallow the rest of the file into one field.
+    /// </summary>
+    public const int MaxRawCsvRecordBytes = 64 << 20;
 
     /// <summary>Deepest JSON nesting accepted on one line.</summary>
     private const int MaxJsonDepth = 64;
@@ -270,7 +279,7 @@ public sealed class TextInputReader : IDisposable
             TrackLineNumbers = true,
             MalformedData = CsvMalformedDataHandling.Skip,
             FieldCountMismatch = CsvFieldCountHandling.Skip,
-            MaxRecordSize = MaxRecordBytes,
+            MaxRecordSize = MaxRawCsvRecordBytes,
             OnMalformedRecord = m => skipped.Enqueue(Reject(m.LineNumber, Describe(m.Reason))),
         };
         using CsvReader csv = CsvReader.Create(_stream, options, leaveOpen: true);
@@ -291,7 +300,9 @@ public sealed class TextInputReader : IDisposable
             }
             catch (CsvFormatException e)
             {
-                throw new TextInputException(Path, e.LineNumber, e.Message);
+                throw new TextInputException(Path, e.LineNumber, e.Message.Contains("MaxRecordSize", StringComparison.Ordinal)
+                    ? string.Create(CultureInfo.InvariantCulture, $"a record longer than {MaxRawCsvRecordBytes:N0} bytes (a quote that is never closed?); the reading stops here")
+                    : e.Message);
             }
             while (skipped.Count > 0)
             {
@@ -308,6 +319,15 @@ public sealed class TextInputReader : IDisposable
     private static InputRecord DelimitedRecord(CsvReader csv, int textColumn, int idColumn, int labelColumn)
     {
         long line = csv.LineNumber;
+        long bytes = 0;
+        for (int i = 0; i < csv.FieldCount; i++)
+        {
+            bytes += csv.GetSpan(i).Length;
+        }
+        if (bytes > MaxRecordBytes)
+        {
+            return Reject(line, string.Create(CultureInfo.InvariantCulture, $"record is longer than {MaxRecordBytes:N0} bytes ({bytes:N0} bytes of field text)"));
+        }
         string? text = Field(csv, textColumn), id = Field(csv, idColumn), label = Field(csv, labelColumn);
         if (text == null || (idColumn >= 0 && id == null) || (labelColumn >= 0 && label == null))
         {

@@ -138,17 +138,85 @@ public sealed partial class TextTokenizer
         }
     }
 
-    /// <summary>Token ids of a text. Never adds a start or end marker.</summary>
+    /// <summary>
+    /// The longest piece of one pre-token that goes to the BPE encoder in one call. BPE merges within a pre-token in
+    /// time that grows with the square of its length (a 1 MiB run of letters took 110 s), so a longer pre-token (a run of
+    /// over 256 letters, digits, symbols or spaces: base64, a DNA string, a long URL) is encoded in 256-character pieces;
+    /// its ids can then differ from one-piece BPE at the cuts. Every natural-language word is shorter.
+    /// </summary>
+    public const int MaxPieceChars = 256;
+
+    /// <summary>At most this many characters of whole pre-tokens go to the BPE encoder in one call.</summary>
+    private const int MaxRunChars = 4096;
+
+    private long _work;
+
+    /// <summary>Σ (characters per BPE call)² so far: a bound on the merge work, linear in the text length (for tests and the benchmark).</summary>
+    internal long Work => Interlocked.Read(ref _work);
+
+    /// <summary>
+    /// Token ids of a text. Never adds a start or end marker. Time is linear in the text's length: pre-tokens go to the
+    /// BPE encoder in runs of at most 4,096 characters, and a pre-token over <see cref="MaxPieceChars"/> in pieces.
+    /// </summary>
     public int[] Encode(string text)
     {
         ArgumentNullException.ThrowIfNull(text);
-        IReadOnlyList<int> ids = _tokenizer.EncodeToIds(text);
-        var result = new int[ids.Count];
-        for (int i = 0; i < result.Length; i++)
+        var ids = new List<int>();
+        int start = 0;
+        while (true)
         {
-            result[i] = ids[i];
+            // The end-of-text marker is a special token wherever it stands; the split pattern never sees it.
+            int marker = text.IndexOf(EndOfTextMarker, start, StringComparison.Ordinal);
+            EncodeSegment(text.AsSpan(start, (marker < 0 ? text.Length : marker) - start), ids);
+            if (marker < 0)
+            {
+                return [.. ids];
+            }
+            ids.Add(EndOfTextId);
+            start = marker + EndOfTextMarker.Length;
         }
-        return result;
+    }
+
+    /// <summary>Encodes text without the marker: whole pre-tokens (as the split pattern finds them) in runs, long ones in pieces.</summary>
+    private void EncodeSegment(ReadOnlySpan<char> segment, List<int> ids)
+    {
+        int runStart = 0, runEnd = 0;
+        foreach (ValueMatch m in Gpt2Split().EnumerateMatches(segment))
+        {
+            if (m.Length > MaxPieceChars || m.Index + m.Length - runStart > MaxRunChars)
+            {
+                Flush(segment[runStart..runEnd], ids);
+                runStart = runEnd = m.Index;
+            }
+            if (m.Length > MaxPieceChars)
+            {
+                ReadOnlySpan<char> token = segment.Slice(m.Index, m.Length);
+                while (token.Length > 0)
+                {
+                    int cut = Math.Min(token.Length, MaxPieceChars);
+                    if (cut < token.Length && char.IsHighSurrogate(token[cut - 1]))
+                    {
+                        cut--;   // never between the halves of a surrogate pair
+                    }
+                    Flush(token[..cut], ids);
+                    token = token[cut..];
+                }
+                runStart = runEnd = m.Index + m.Length;
+                continue;
+            }
+            runEnd = m.Index + m.Length;
+        }
+        Flush(segment[runStart..runEnd], ids);
+    }
+
+    private void Flush(ReadOnlySpan<char> run, List<int> ids)
+    {
+        if (run.IsEmpty)
+        {
+            return;
+        }
+        Interlocked.Add(ref _work, (long)run.Length * run.Length);
+        ids.AddRange(_tokenizer.EncodeToIds(run));
     }
 
     /// <summary>The text of a sequence of ids (bytes that do not form whole UTF-8 characters become U+FFFD).</summary>
