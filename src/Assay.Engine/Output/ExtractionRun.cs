@@ -308,7 +308,7 @@ public static class ExtractionRun
 
     private static void Finish(string folder, CommitPoint state, OutputFile[] outputs, RunShard? shard, long inputRows)
     {
-        RunRecord.Create(state.Settings, new RunCounts(state.Read, state.Accepted, state.Rejected, state.TruncatedRows, state.Tokens),
+        RunRecord.Create(folder, state.Settings, new RunCounts(state.Read, state.Accepted, state.Rejected, state.TruncatedRows, state.Tokens),
             outputs.Select(o => (o.FileName, o.Descr, o.Output.Width)), shard, inputRows).Write(folder);
 
         double seconds = state.Sessions.Sum(s => s!["seconds"]!.GetValue<double>());
@@ -381,15 +381,30 @@ public static class ExtractionRun
         {
             _outputs = outputs;
             _arrays = new NpyAppender[outputs.Length];
-            for (int i = 0; i < outputs.Length; i++)
+            FileStream? rows = null;
+            try
             {
-                string path = Path.Combine(folder, outputs[i].FileName);
-                _arrays[i] = fresh
-                    ? NpyAppender.Create(path, outputs[i].Descr, outputs[i].Output.Width)
-                    : NpyAppender.Reopen(path, outputs[i].Descr, outputs[i].Output.Width, state.Accepted);
+                for (int i = 0; i < outputs.Length; i++)
+                {
+                    string path = Path.Combine(folder, outputs[i].FileName);
+                    _arrays[i] = fresh
+                        ? NpyAppender.Create(path, outputs[i].Descr, outputs[i].Output.Width)
+                        : NpyAppender.Reopen(folder, path, outputs[i].Descr, outputs[i].Output.Width, state.Accepted);
+                }
+                rows = RunTable.Rows.Open(folder, fresh, state.RowsBytes);
+                _rejects = RunTable.Rejects.Open(folder, fresh, state.RejectsBytes);
+                _rows = rows;
             }
-            _rows = RunTable.Rows.Open(folder, fresh, state.RowsBytes);
-            _rejects = RunTable.Rejects.Open(folder, fresh, state.RejectsBytes);
+            catch
+            {
+                // A damaged file found on resume: nothing stays open (a file already cut back lost only rows after the last commit).
+                rows?.Dispose();
+                foreach (NpyAppender? a in _arrays)
+                {
+                    a?.Dispose();
+                }
+                throw;
+            }
             if (fresh)
             {
                 state.RowsBytes = _rows.Length;

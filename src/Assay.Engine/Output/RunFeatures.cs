@@ -55,6 +55,16 @@ public sealed record RunFeatures(double[] Values, int Rows, int Width, IReadOnly
         string stem = Resolve(runFolder, feature);
         string path = Path.Combine(runFolder, stem + ".npy");
         byte[] bytes = InputFile.ReadAllBytes(path, Array.MaxLength);
+        // The bytes are in memory anyway: a file changed since its run finished is caught by the record's SHA-256.
+        foreach ((string file, long length, string sha) in RunRecord.Read(runFolder).Digests.Where(d => d.File == stem + ".npy"))
+        {
+            string actual = Convert.ToHexStringLower(System.Security.Cryptography.SHA256.HashData(bytes));
+            if (bytes.LongLength != length || actual != sha)
+            {
+                throw new RunFolderException(runFolder, string.Create(System.Globalization.CultureInfo.InvariantCulture,
+                    $"{file}: {bytes.LongLength:N0} bytes, SHA-256 {actual}; its run finished with {length:N0} bytes, SHA-256 {sha}: the file was changed since"));
+            }
+        }
         (string descr, long rowCount, int width, int offset) = NpyFormat.ReadHeader(bytes)
             ?? throw new RunFolderException(runFolder, $"{path}: not a 2-D .npy file of float32, float16 or int32");
         int rows = checked((int)rowCount);

@@ -73,7 +73,7 @@ public static class RunMerge
             File.Copy(Path.Combine(first.Folder, RunFolder.RejectsFile), Path.Combine(staging, RunFolder.RejectsFile));
 
             var counts = new RunCounts(first.Read, rows, first.Rejected, shards.Sum(s => s.Counts.TruncatedRows), shards.Sum(s => s.Counts.Tokens));
-            RunRecord.Create(first.Settings, counts, first.Files).Write(staging);
+            RunRecord.Create(staging, first.Settings, counts, first.Files).Write(staging);
             AtomicFile.WriteJson(Path.Combine(staging, RunFolder.MergeFile), Provenance(shards));
 
             foreach (string file in Directory.GetFiles(staging).Select(f => Path.GetFileName(f)).OrderBy(n => n == RunFolder.RecordFile))
@@ -340,6 +340,10 @@ public static class RunMerge
             if (settings["shard"] is null || record.Shard is not { } shard)
             {
                 throw new RunFolderException(folder, "holds an unsharded run; only the folders of assay extract --shard k/n runs are merged");
+            }
+            if (record.FirstDamagedFile(folder) is string damaged)
+            {
+                throw new RunFolderException(folder, $"{damaged}: the shard folder was changed since its run finished; extract that shard again");
             }
             settings.Remove("shard");
             return new ShardRun

@@ -28,31 +28,57 @@ internal sealed class CommitPoint
 
     public bool Complete { get; init; }
 
-    /// <summary>Reads progress.json of <paramref name="folder"/>.</summary>
+    /// <summary>Reads progress.json of <paramref name="folder"/>, every field checked.</summary>
+    /// <exception cref="RunFolderException">The file is not JSON, or a field is missing, of the wrong kind, negative or
+    /// inconsistent with the others.</exception>
     public static CommitPoint Load(string folder)
     {
         JsonObject o;
         try
         {
-            o = (JsonObject)JsonNode.Parse(InputFile.ReadAllBytes(Path.Combine(folder, RunFolder.ProgressFile)))!;
+            o = JsonNode.Parse(InputFile.ReadAllBytes(Path.Combine(folder, RunFolder.ProgressFile))) as JsonObject
+                ?? throw new JsonException("not a JSON object");
         }
-        catch (Exception e) when (e is JsonException or InvalidCastException or NullReferenceException)
+        catch (JsonException e)
         {
-            throw new RunFolderException(folder, $"{RunFolder.ProgressFile} is unreadable ({e.Message}); pass --overwrite to start over");
+            throw Damaged(folder, $"is not JSON ({e.Message})");
         }
-        return new CommitPoint
+        long Count(string name)
         {
-            Settings = (JsonObject)o["settings"]!.DeepClone(),
-            Read = o["read"]!.GetValue<long>(),
-            Accepted = o["accepted"]!.GetValue<long>(),
-            Rejected = o["rejected"]!.GetValue<long>(),
-            TruncatedRows = o["truncated_rows"]!.GetValue<long>(),
-            Tokens = o["tokens"]!.GetValue<long>(),
-            RowsBytes = o["rows_bytes"]!.GetValue<long>(),
-            RejectsBytes = o["rejects_bytes"]!.GetValue<long>(),
-            Sessions = (JsonArray)o["sessions"]!.DeepClone(),
+            try
+            {
+                long value = o[name]?.GetValue<long>() ?? throw Damaged(folder, $"has no \"{name}\"");
+                return value >= 0 ? value : throw Damaged(folder, $"\"{name}\" is {value}, a negative count");
+            }
+            catch (Exception e) when (e is InvalidOperationException or FormatException)
+            {
+                throw Damaged(folder, $"\"{name}\" is {Cut(o[name]!.ToJsonString())}, not a count");
+            }
+        }
+        var state = new CommitPoint
+        {
+            Settings = o["settings"] is JsonObject settings ? (JsonObject)settings.DeepClone() : throw Damaged(folder, "has no \"settings\" object"),
+            Read = Count("read"),
+            Accepted = Count("accepted"),
+            Rejected = Count("rejected"),
+            TruncatedRows = Count("truncated_rows"),
+            Tokens = Count("tokens"),
+            RowsBytes = Count("rows_bytes"),
+            RejectsBytes = Count("rejects_bytes"),
+            Sessions = o["sessions"] is JsonArray sessions ? (JsonArray)sessions.DeepClone() : throw Damaged(folder, "has no \"sessions\" array"),
         };
+        if (state.Accepted + state.Rejected > state.Read || state.TruncatedRows > state.Accepted)
+        {
+            throw Damaged(folder, string.Create(System.Globalization.CultureInfo.InvariantCulture,
+                $"counts do not add up (read {state.Read}, accepted {state.Accepted}, rejected {state.Rejected}, truncated rows {state.TruncatedRows})"));
+        }
+        return state;
     }
+
+    private static RunFolderException Damaged(string folder, string problem) =>
+        new(folder, $"{RunFolder.ProgressFile} {problem}: the folder was changed since it was written; start over with --overwrite");
+
+    private static string Cut(string value) => value.Length <= 60 ? value : value[..60] + "…";
 
     /// <summary>The state of a finished run.</summary>
     public static CommitPoint Finished(RunRecord record)

@@ -39,25 +39,46 @@ internal sealed class NpyAppender : IDisposable
 
     /// <summary>
     /// Opens a file an interrupted run left, keeping its first <paramref name="rows"/> rows and dropping anything
-    /// after them (rows written after the last commit).
+    /// after them (rows written after the last commit). The header is checked first: a .npy of this dtype and width
+    /// whose header counts at least the committed rows, with their bytes there.
     /// </summary>
-    /// <exception cref="IOException">The file is shorter than the committed rows: it was changed since.</exception>
-    public static NpyAppender Reopen(string path, string descr, int width, long rows)
+    /// <exception cref="RunFolderException">The file is missing, not such a .npy, or shorter than the committed rows.</exception>
+    public static NpyAppender Reopen(string folder, string path, string descr, int width, long rows)
     {
+        if (!File.Exists(path))
+        {
+            throw new RunFolderException(folder, $"{System.IO.Path.GetFileName(path)} is missing: the folder was changed since it was written; start over with --overwrite");
+        }
         InputFile.Check(path);
         var file = new FileStream(path, FileMode.Open, FileAccess.ReadWrite, FileShare.Read);
-        var npy = new NpyAppender(path, file, descr, width, NpyFormat.ElementBytes(descr));
-        long length = NpyFormat.HeaderBytes + (rows * npy.RowBytes);
-        if (file.Length < length)
+        try
+        {
+            var npy = new NpyAppender(path, file, descr, width, NpyFormat.ElementBytes(descr));
+            long length = NpyFormat.HeaderBytes + (rows * npy.RowBytes);
+            byte[] header = new byte[Math.Min(file.Length, NpyFormat.HeaderBytes)];
+            file.ReadExactly(header);
+            string? problem = NpyFormat.ReadHeader(header) switch
+            {
+                null => "has no .npy header",
+                var (d, _, w, _) when d != descr || w != width => string.Create(CultureInfo.InvariantCulture, $"has dtype {d} and width {w}; the run writes {descr} × {width}"),
+                var (_, r, _, _) when r < rows => string.Create(CultureInfo.InvariantCulture, $"counts {r:N0} rows in its header; {rows:N0} were committed"),
+                _ when file.Length < length => string.Create(CultureInfo.InvariantCulture, $"holds {file.Length:N0} bytes; the {rows:N0} committed rows need {length:N0}"),
+                _ => null,
+            };
+            if (problem != null)
+            {
+                throw new RunFolderException(folder, $"{System.IO.Path.GetFileName(path)} {problem}: the folder was changed since it was written; start over with --overwrite");
+            }
+            file.SetLength(length);
+            npy.WriteHeader(rows);
+            file.Seek(0, SeekOrigin.End);
+            return npy;
+        }
+        catch
         {
             file.Dispose();
-            throw new IOException(string.Create(CultureInfo.InvariantCulture,
-                $"{path} holds {file.Length} bytes; the {rows} committed rows need {length}: the run folder was changed since it was written. Start over with --overwrite."));
+            throw;
         }
-        file.SetLength(length);
-        npy.WriteHeader(rows);
-        file.Seek(0, SeekOrigin.End);
-        return npy;
     }
 
     public void Append(ReadOnlySpan<byte> rows) => _file.Write(rows);

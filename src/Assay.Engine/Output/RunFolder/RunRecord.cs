@@ -12,8 +12,10 @@ namespace Assay.Output;
 /// </summary>
 public sealed class RunRecord
 {
-    private RunRecord(JsonObject settings, RunCounts counts, IReadOnlyList<RunOutputFile> files, RunShard? shard, long shardInputRows, string sha256)
+    private RunRecord(JsonObject settings, RunCounts counts, IReadOnlyList<RunOutputFile> files, RunShard? shard, long shardInputRows, string sha256,
+        IReadOnlyList<(string File, long Bytes, string Sha256)> digests)
     {
+        Digests = digests;
         Settings = settings;
         Counts = counts;
         Files = files;
@@ -37,13 +39,64 @@ public sealed class RunRecord
     /// <summary>For a shard: the accepted rows of the whole input, of which the shard holds its share.</summary>
     internal long ShardInputRows { get; }
 
+    /// <summary>
+    /// Every output file (the feature files, rows.csv, rejects.csv) with its size and SHA-256 when the run finished;
+    /// empty in a record written before they were kept.
+    /// </summary>
+    internal IReadOnlyList<(string File, long Bytes, string Sha256)> Digests { get; }
+
     /// <summary>SHA-256 of the file's bytes (empty for a record not yet written).</summary>
     internal string Sha256 { get; }
 
-    /// <summary>The record of a finished run with these settings and counts, and files of these names, dtypes and widths.</summary>
-    internal static RunRecord Create(JsonObject settings, RunCounts counts, IEnumerable<(string File, string DType, int Width)> files,
-        RunShard? shard = null, long shardInputRows = 0) =>
-        new(settings, counts, [.. files.Select(f => new RunOutputFile(f.File, f.DType, counts.Accepted, f.Width))], shard, shardInputRows, "");
+    /// <summary>
+    /// The record of a finished run in <paramref name="folder"/> with these settings and counts, and files of these
+    /// names, dtypes and widths; every output file there is hashed for it.
+    /// </summary>
+    internal static RunRecord Create(string folder, JsonObject settings, RunCounts counts, IEnumerable<(string File, string DType, int Width)> files,
+        RunShard? shard = null, long shardInputRows = 0)
+    {
+        RunOutputFile[] outputs = [.. files.Select(f => new RunOutputFile(f.File, f.DType, counts.Accepted, f.Width))];
+        var digests = new List<(string, long, string)>();
+        foreach (string file in outputs.Select(o => o.File).Append(RunFolder.RowsFile).Append(RunFolder.RejectsFile))
+        {
+            using FileStream stream = InputFile.OpenRead(Path.Combine(folder, file), 1 << 20, FileOptions.SequentialScan);
+            digests.Add((file, stream.Length, Convert.ToHexStringLower(SHA256.HashData(stream))));
+        }
+        return new(settings, counts, outputs, shard, shardInputRows, "", digests);
+    }
+
+    /// <summary>
+    /// The first output file of <paramref name="folder"/> whose size or SHA-256 is not what this record kept (a byte
+    /// flipped, a file cut or replaced), as "file: what", or null when all match.
+    /// </summary>
+    /// <exception cref="RunFolderException">The record keeps no digests (it was written by an earlier version).</exception>
+    public string? FirstDamagedFile(string folder)
+    {
+        ArgumentNullException.ThrowIfNull(folder);
+        if (Digests.Count == 0)
+        {
+            throw new RunFolderException(folder, $"{RunFolder.RecordFile} keeps no file sizes and SHA-256 (written by an earlier assay), so its files cannot be checked; extract it again");
+        }
+        foreach ((string file, long bytes, string sha) in Digests)
+        {
+            string path = Path.Combine(folder, file);
+            if (!File.Exists(path))
+            {
+                return $"{file}: missing";
+            }
+            using FileStream stream = InputFile.OpenRead(path, 1 << 20, FileOptions.SequentialScan);
+            if (stream.Length != bytes)
+            {
+                return string.Create(CultureInfo.InvariantCulture, $"{file}: {stream.Length:N0} bytes; the record kept {bytes:N0}");
+            }
+            string actual = Convert.ToHexStringLower(SHA256.HashData(stream));
+            if (actual != sha)
+            {
+                return $"{file}: SHA-256 {actual}; the record kept {sha}";
+            }
+        }
+        return null;
+    }
 
     /// <summary>Reads the record of the run in <paramref name="folder"/>.</summary>
     /// <exception cref="RunFolderException">There is no record (no finished run), or it is unreadable.</exception>
@@ -76,7 +129,10 @@ public sealed class RunRecord
                 shard = new RunShard(index, count);
                 inputRows = s["input_rows"]!.GetValue<long>();
             }
-            return new RunRecord((JsonObject)record["settings"]!.DeepClone(), counts, files, shard, inputRows, Convert.ToHexStringLower(SHA256.HashData(bytes)));
+            (string, long, string)[] digests = record["digests"] is JsonArray kept
+                ? [.. kept.Select(d => (d!["file"]!.GetValue<string>(), d["bytes"]!.GetValue<long>(), d["sha256"]!.GetValue<string>()))]
+                : [];
+            return new RunRecord((JsonObject)record["settings"]!.DeepClone(), counts, files, shard, inputRows, Convert.ToHexStringLower(SHA256.HashData(bytes)), digests);
         }
         catch (Exception e) when (e is JsonException or InvalidCastException or InvalidOperationException or NullReferenceException
             or FormatException or IndexOutOfRangeException or ArgumentOutOfRangeException)
@@ -108,6 +164,7 @@ public sealed class RunRecord
                 ["tokens"] = Counts.Tokens,
             },
             ["files"] = shapes,
+            ["digests"] = new JsonArray([.. Digests.Select(d => new JsonObject { ["file"] = d.File, ["bytes"] = d.Bytes, ["sha256"] = d.Sha256 })]),
         };
         if (Shard is { } shard)
         {

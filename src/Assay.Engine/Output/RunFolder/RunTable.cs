@@ -27,7 +27,7 @@ internal sealed class RunTable
     public IReadOnlyList<string> Columns { get; }
 
     /// <summary>Creates the table with its header line (<paramref name="fresh"/>), or reopens it cut back to <paramref name="committedBytes"/>.</summary>
-    /// <exception cref="IOException">The file is shorter than its last commit: the folder was changed since.</exception>
+    /// <exception cref="RunFolderException">The file is missing or shorter than its last commit: the folder was changed since.</exception>
     public FileStream Open(string folder, bool fresh, long committedBytes)
     {
         string path = Path.Combine(folder, FileName);
@@ -44,12 +44,18 @@ internal sealed class RunTable
             });
             return created;
         }
+        if (!File.Exists(path))
+        {
+            throw new RunFolderException(folder, $"{FileName} is missing: the folder was changed since it was written; start over with --overwrite");
+        }
         InputFile.Check(path);
         var file = new FileStream(path, FileMode.Open, FileAccess.ReadWrite, FileShare.Read);
         if (file.Length < committedBytes)
         {
+            long length = file.Length;
             file.Dispose();
-            throw new IOException($"{path} is shorter than its last commit: the run folder was changed since it was written. Start over with --overwrite.");
+            throw new RunFolderException(folder, string.Create(System.Globalization.CultureInfo.InvariantCulture,
+                $"{FileName} holds {length:N0} bytes, less than the {committedBytes:N0} of its last commit: the folder was changed since it was written; start over with --overwrite"));
         }
         file.SetLength(committedBytes);
         file.Seek(0, SeekOrigin.End);
