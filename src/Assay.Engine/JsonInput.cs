@@ -9,8 +9,12 @@ namespace Assay;
 /// </summary>
 internal static class JsonInput
 {
-    /// <summary>Parses <paramref name="utf8"/>, or returns null with the reason in <paramref name="problem"/>.</summary>
-    public static JsonDocument? TryParse(byte[] utf8, int maxDepth, out string problem)
+    /// <summary>
+    /// Parses <paramref name="utf8"/>, or returns null with the reason in <paramref name="problem"/>. A key given twice
+    /// in an object is refused, unless <paramref name="callerNamesDuplicates"/>: the caller checks the objects where
+    /// that can happen and names the key (a tensor, a token).
+    /// </summary>
+    public static JsonDocument? TryParse(byte[] utf8, int maxDepth, out string problem, bool callerNamesDuplicates = false)
     {
         if (!Utf8.IsValid(utf8))
         {
@@ -21,7 +25,7 @@ internal static class JsonInput
         try
         {
             // A key given twice is refused: which of the two values counts would be a guess.
-            document = JsonDocument.Parse(utf8, new JsonDocumentOptions { MaxDepth = maxDepth, AllowDuplicateProperties = false });
+            document = JsonDocument.Parse(utf8, new JsonDocumentOptions { MaxDepth = maxDepth, AllowDuplicateProperties = callerNamesDuplicates });
         }
         catch (JsonException e)
         {

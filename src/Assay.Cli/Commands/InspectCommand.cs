@@ -24,6 +24,9 @@ internal static class InspectCommand
 
     private static readonly WeightPrecision[] Storages = [WeightPrecision.Binary32, WeightPrecision.BFloat16, WeightPrecision.Integer8];
 
+    /// <summary>The widest the tensor-name column gets.</summary>
+    private const int NameColumn = 80;
+
     internal static int Run(string folder, TextWriter o)
     {
         CultureInfo inv = CultureInfo.InvariantCulture;
@@ -64,10 +67,12 @@ internal static class InspectCommand
 
         o.WriteLine();
         o.WriteLine("tensor inventory");
-        int nameWidth = Math.Max(4, tensors.Count == 0 ? 0 : tensors.Max(t => t.Name.Length));
+        // The name column is as wide as the longest name up to 80 characters; a longer name is cut (Echo) and its row
+        // runs past the column, so no name makes every row long.
+        int nameWidth = Math.Clamp(tensors.Count == 0 ? 0 : tensors.Max(t => t.Name.Length), 4, NameColumn);
         foreach (TensorInfo t in tensors)
         {
-            o.WriteLine(string.Create(inv, $"  {t.Name.PadRight(nameWidth)}  {t.DType.Name(),-5} {t.ShapeText,-16} {t.ByteLength,13:N0}  {Path.GetFileName(t.FilePath)}"));
+            o.WriteLine(string.Create(inv, $"  {Echo.Of(t.Name, NameColumn).PadRight(nameWidth)}  {t.DType.Name(),-5} {t.ShapeText,-16} {t.ByteLength,13:N0}  {Path.GetFileName(t.FilePath)}"));
         }
 
         o.WriteLine();
@@ -155,7 +160,7 @@ internal static class InspectCommand
         if (checkpoint.FirstNonFiniteValue() is { } bad)
         {
             return string.Create(CultureInfo.InvariantCulture,
-                $"{bad.Tensor.FilePath}: tensor {bad.Tensor.Name} holds {(float.IsNaN(bad.Value) ? "NaN" : bad.Value > 0 ? "+infinity" : "-infinity")} at element {bad.Index:N0} of {bad.Tensor.ElementCount:N0}; every forward pass would stop on it");
+                $"{bad.Tensor.FilePath}: tensor {Echo.Of(bad.Tensor.Name)} holds {(float.IsNaN(bad.Value) ? "NaN" : bad.Value > 0 ? "+infinity" : "-infinity")} at element {bad.Index:N0} of {bad.Tensor.ElementCount:N0}; every forward pass would stop on it");
         }
         return null;
     }

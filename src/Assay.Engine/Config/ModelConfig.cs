@@ -111,7 +111,7 @@ public sealed record ModelConfig
         }
         if (epsEl.ValueKind != JsonValueKind.Number || !epsEl.TryGetDouble(out double eps) || !(eps > 0 && eps < 1))
         {
-            throw new ModelConfigException(path, "layer_norm_epsilon", $"{epsEl.GetRawText()}; expected a number in (0, 1)");
+            throw new ModelConfigException(path, "layer_norm_epsilon", $"{Echo.Of(epsEl.GetRawText())}; expected a number in (0, 1)");
         }
 
         string activationName = OptionalString(path, root, "activation_function")
@@ -155,7 +155,7 @@ public sealed record ModelConfig
         if (el.ValueKind != JsonValueKind.Number || !el.TryGetInt64(out long v) || v < min || v > max)
         {
             throw new ModelConfigException(path, field,
-                $"{el.GetRawText()}; expected an integer in [{min.ToString(CultureInfo.InvariantCulture)}, {max.ToString(CultureInfo.InvariantCulture)}]");
+                $"{Echo.Of(el.GetRawText())}; expected an integer in [{min.ToString(CultureInfo.InvariantCulture)}, {max.ToString(CultureInfo.InvariantCulture)}]");
         }
         return (int)v;
     }
@@ -168,7 +168,7 @@ public sealed record ModelConfig
         }
         return el.ValueKind == JsonValueKind.String
             ? el.GetString()
-            : throw new ModelConfigException(path, field, $"{el.GetRawText()}; expected a string");
+            : throw new ModelConfigException(path, field, $"{Echo.Of(el.GetRawText())}; expected a string");
     }
 
     private static bool? OptionalBool(string path, JsonElement root, string field)
@@ -181,7 +181,7 @@ public sealed record ModelConfig
         {
             JsonValueKind.True => true,
             JsonValueKind.False => false,
-            _ => throw new ModelConfigException(path, field, $"{el.GetRawText()}; expected true or false"),
+            _ => throw new ModelConfigException(path, field, $"{Echo.Of(el.GetRawText())}; expected true or false"),
         };
     }
 

@@ -92,7 +92,7 @@ public sealed partial class TextTokenizer
     /// <summary>Byte-level BPE from the "model" section (type "BPE", "vocab", "merges") of a JSON tokenizer definition.</summary>
     public static TextTokenizer FromDefinition(string path)
     {
-        JsonDocument doc = JsonInput.TryParse(InputFile.ReadAllBytes(path, InputFile.TokenizerFileBytes), maxDepth: 64, out string problem)
+        JsonDocument doc = JsonInput.TryParse(InputFile.ReadAllBytes(path, InputFile.TokenizerFileBytes), maxDepth: 64, out string problem, callerNamesDuplicates: true)
             ?? throw new TokenizerFileException(path, problem);
         using (doc)
         {
@@ -129,7 +129,7 @@ public sealed partial class TextTokenizer
                 };
                 if (merge is null || !IsMergeLine(merge))
                 {
-                    throw new TokenizerFileException(path, $"model.merges[{i}] is {m.GetRawText()}; expected \"left right\" or [\"left\", \"right\"]");
+                    throw new TokenizerFileException(path, $"model.merges[{i}] is {Echo.Of(m.GetRawText())}; expected \"left right\" or [\"left\", \"right\"]");
                 }
                 merges.Add(merge);
                 i++;
@@ -251,7 +251,7 @@ public sealed partial class TextTokenizer
 
     private static Dictionary<string, int> ReadVocabulary(string path)
     {
-        JsonDocument doc = JsonInput.TryParse(InputFile.ReadAllBytes(path, InputFile.TokenizerFileBytes), maxDepth: 4, out string problem)
+        JsonDocument doc = JsonInput.TryParse(InputFile.ReadAllBytes(path, InputFile.TokenizerFileBytes), maxDepth: 4, out string problem, callerNamesDuplicates: true)
             ?? throw new TokenizerFileException(path, problem);
         using (doc)
         {
@@ -271,15 +271,15 @@ public sealed partial class TextTokenizer
         {
             if (p.Value.ValueKind != JsonValueKind.Number || !p.Value.TryGetInt32(out int id) || id < 0)
             {
-                throw new TokenizerFileException(path, $"{what}: token '{p.Name}' has id {p.Value.GetRawText()}; expected a non-negative integer");
+                throw new TokenizerFileException(path, $"{what}: token '{Echo.Of(p.Name)}' has id {Echo.Of(p.Value.GetRawText())}; expected a non-negative integer");
             }
             if (!vocabulary.TryAdd(p.Name, id))
             {
-                throw new TokenizerFileException(path, $"{what}: token '{p.Name}' appears twice");
+                throw new TokenizerFileException(path, $"{what}: token '{Echo.Of(p.Name)}' appears twice");
             }
             if (!ids.Add(id))
             {
-                throw new TokenizerFileException(path, $"{what}: id {id} is given to more than one token (again at '{p.Name}')");
+                throw new TokenizerFileException(path, $"{what}: id {id} is given to more than one token (again at '{Echo.Of(p.Name)}')");
             }
         }
         if (vocabulary.Count == 0)
@@ -322,13 +322,13 @@ public sealed partial class TextTokenizer
             }
             if (!IsMergeLine(line))
             {
-                throw new TokenizerFileException(path, $"line {lineNumber}: '{line}' is not a merge; expected two tokens separated by one space");
+                throw new TokenizerFileException(path, $"line {lineNumber}: '{Echo.Of(line)}' is not a merge; expected two tokens separated by one space");
             }
             int space = line.IndexOf(' ', StringComparison.Ordinal);
             string joined = string.Concat(line.AsSpan(0, space), line.AsSpan(space + 1));
             if (!vocabulary.ContainsKey(joined))
             {
-                throw new TokenizerFileException(path, $"line {lineNumber}: merge '{line}' makes '{joined}', which is not in {vocabPath}");
+                throw new TokenizerFileException(path, $"line {lineNumber}: merge '{Echo.Of(line)}' makes '{Echo.Of(joined)}', which is not in {vocabPath}");
             }
             merges.Add(line);
         }

@@ -149,7 +149,7 @@ public sealed class SafetensorsCheckpoint : IDisposable
                 string shardPath = Path.Combine(folder, shard);
                 if (!File.Exists(shardPath))
                 {
-                    throw new WeightsFormatException(indexPath, null, $"shard '{shard}' named in weight_map is not in the folder");
+                    throw new WeightsFormatException(indexPath, null, $"shard '{Echo.Of(shard)}' named in weight_map is not in the folder");
                 }
                 SafetensorsFile f = SafetensorsFile.Open(shardPath);
                 files.Add(f);
@@ -171,7 +171,7 @@ public sealed class SafetensorsCheckpoint : IDisposable
                     }
                     if (!ReferenceEquals(byShard[mapped], f))
                     {
-                        throw new WeightsFormatException(indexPath, t.Name, $"weight_map says '{mapped}'; the tensor is in {f.FilePath}");
+                        throw new WeightsFormatException(indexPath, t.Name, $"weight_map says '{Echo.Of(mapped)}'; the tensor is in {f.FilePath}");
                     }
                     byName.Add(t.Name, (t, f));
                 }
@@ -180,7 +180,7 @@ public sealed class SafetensorsCheckpoint : IDisposable
             {
                 if (!byName.ContainsKey(name))
                 {
-                    throw new WeightsFormatException(indexPath, name, $"weight_map says '{shard}', which does not hold it");
+                    throw new WeightsFormatException(indexPath, name, $"weight_map says '{Echo.Of(shard)}', which does not hold it");
                 }
             }
             return new SafetensorsCheckpoint(folder, indexPath, files, byName);

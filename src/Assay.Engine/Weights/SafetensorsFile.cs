@@ -226,7 +226,7 @@ public sealed unsafe class SafetensorsFile : IDisposable
 
     private static (List<TensorInfo>, Dictionary<string, string>) ParseHeader(string path, ReadOnlySpan<byte> header, long dataLength)
     {
-        JsonDocument doc = JsonInput.TryParse(header.ToArray(), maxDepth: 8, out string problem)
+        JsonDocument doc = JsonInput.TryParse(header.ToArray(), maxDepth: 8, out string problem, callerNamesDuplicates: true)
             ?? throw new WeightsFormatException(path, null, $"header is {problem}");
 
         using (doc)
@@ -283,7 +283,7 @@ public sealed unsafe class SafetensorsFile : IDisposable
             }
             if (!metadata.TryAdd(m.Name, m.Value.GetString()!))
             {
-                throw new WeightsFormatException(path, null, $"'{MetadataKey}' entry '{m.Name}' appears twice");
+                throw new WeightsFormatException(path, null, $"'{MetadataKey}' entry '{Echo.Of(m.Name)}' appears twice");
             }
         }
     }
@@ -301,7 +301,7 @@ public sealed unsafe class SafetensorsFile : IDisposable
         string dtypeText = dtypeEl.GetString()!;
         TensorDType dtype = TensorDTypes.Parse(dtypeText)
             ?? throw new WeightsFormatException(path, name,
-                $"unknown dtype '{dtypeText}'; expected one of F32, F16, BF16, F64, F8_E4M3, F8_E5M2, I64, I32, I16, I8, U64, U32, U16, U8, BOOL");
+                $"unknown dtype '{Echo.Of(dtypeText)}'; expected one of F32, F16, BF16, F64, F8_E4M3, F8_E5M2, I64, I32, I16, I8, U64, U32, U16, U8, BOOL");
 
         if (!e.TryGetProperty("shape", out JsonElement shapeEl) || shapeEl.ValueKind != JsonValueKind.Array)
         {
@@ -319,7 +319,7 @@ public sealed unsafe class SafetensorsFile : IDisposable
         {
             if (d.ValueKind != JsonValueKind.Number || !d.TryGetInt64(out long dim) || dim < 0)
             {
-                throw new WeightsFormatException(path, name, $"shape entry {i} is {d.GetRawText()}; expected a non-negative integer");
+                throw new WeightsFormatException(path, name, $"shape entry {i} is {Echo.Of(d.GetRawText())}; expected a non-negative integer");
             }
             shape[i++] = dim;
             if (dim != 0 && elements > long.MaxValue / dim)
@@ -338,7 +338,7 @@ public sealed unsafe class SafetensorsFile : IDisposable
             || !offEl[0].TryGetInt64(out begin) || !offEl[1].TryGetInt64(out end) || begin < 0 || end < begin)
         {
             throw new WeightsFormatException(path, name,
-                $"data_offsets {offEl.GetRawText()} must be two integers with 0 <= begin <= end");
+                $"data_offsets {Echo.Of(offEl.GetRawText())} must be two integers with 0 <= begin <= end");
         }
         if (end > dataLength)
         {
@@ -357,7 +357,7 @@ public sealed unsafe class SafetensorsFile : IDisposable
         {
             if (p.Name is not ("dtype" or "shape" or "data_offsets"))
             {
-                throw new WeightsFormatException(path, name, $"entry has unknown field '{p.Name}'");
+                throw new WeightsFormatException(path, name, $"entry has unknown field '{Echo.Of(p.Name)}'");
             }
         }
 

@@ -13,5 +13,5 @@ public sealed class WeightsFormatException : InvalidInputException
     public string? TensorName { get; }
 
     private static string Compose(string filePath, string? tensorName, string problem) =>
-        tensorName is null ? $"{filePath}: {problem}" : $"{filePath}: tensor '{tensorName}': {problem}";
+        tensorName is null ? $"{filePath}: {problem}" : $"{filePath}: tensor '{Echo.Of(tensorName)}': {problem}";
 }

@@ -183,7 +183,7 @@ public sealed class ShardMergeTests
             ([s[0], temp.File("prompt"), s[2]], "different prompt"),
             ([s[0], temp.File("input"), s[2]], "different input"),
             ([s[0], unfinished, s[2]], "holds an unfinished shard"),
-            ([s[0], damaged, s[2]], "cmean.npy is"),
+            ([s[0], damaged, s[2]], "cmean.npy: "),
             ([s[0], temp.File("no-such-folder"), s[2]], "no such shard folder"),
         ];
         foreach ((string[] folders, string expected) in cases)
