@@ -28,18 +28,22 @@ internal static class CommandRunner
         }
     }
 
-    /// <summary>The message without .NET's " (Parameter 'name')" suffix, which names code, not the user's input.</summary>
+    /// <summary>
+    /// The message's first line without .NET's " (Parameter 'name')" (and "Actual value was …" after it), which name
+    /// code, not the user's input.
+    /// </summary>
     public static string Message(Exception e)
     {
         string message = e.Message;
         if (e is ArgumentException { ParamName: string name })
         {
-            string suffix = $" (Parameter '{name}')";
-            if (message.EndsWith(suffix, StringComparison.Ordinal))
+            int at = message.IndexOf($" (Parameter '{name}')", StringComparison.Ordinal);
+            if (at >= 0)
             {
-                message = message[..^suffix.Length];
+                message = message[..at];
             }
         }
-        return message;
+        int newline = message.IndexOfAny(['\r', '\n']);
+        return newline < 0 ? message : message[..newline];
     }
 }

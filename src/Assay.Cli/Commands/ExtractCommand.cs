@@ -133,7 +133,7 @@ internal static class ExtractCommand
         catch (Exception e) when (e is IOException or UnauthorizedAccessException && e is not FileNotFoundException and not DirectoryNotFoundException)
         {
             printer.End();
-            err.WriteLine($"assay: cannot write the run folder {q.Output}: {e.Message}. The rows committed so far are kept; free space or make the folder writable, then rerun the same command with --resume.");
+            err.WriteLine($"assay: cannot write the run folder {q.Output}: {e.Message.TrimEnd('.')}. The rows committed so far are kept; free space or make the folder writable, then rerun the same command with --resume.");
             return WriteFailed;
         }
         printer.End();

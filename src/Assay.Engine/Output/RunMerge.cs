@@ -38,6 +38,7 @@ public static class RunMerge
             throw new ArgumentException("no shard folders to merge", nameof(shardFolders));
         }
         outputFolder = Path.TrimEndingDirectorySeparator(Path.GetFullPath(outputFolder));
+        FolderLock.RefuseFile(outputFolder);
         bool existed = Directory.Exists(outputFolder);
         if (existed && Directory.EnumerateFileSystemEntries(outputFolder).Any(e => !FolderLock.IsLockFile(Path.GetFileName(e))))
         {

@@ -21,6 +21,7 @@ public static class ReportFolder
     public static void CheckClaimable(string folder, bool overwrite)
     {
         ArgumentNullException.ThrowIfNull(folder);
+        Output.FolderLock.RefuseFile(folder);
         if (Directory.Exists(folder))
         {
             Check(folder, overwrite);

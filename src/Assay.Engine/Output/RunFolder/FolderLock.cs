@@ -26,14 +26,26 @@ public sealed class FolderLock : IDisposable
         _writer = writer;
     }
 
+    /// <summary>An output path that names a file (or anything but a folder) is a mistake in the command, not a write failure.</summary>
+    /// <exception cref="RunFolderException">The path exists and is not a folder.</exception>
+    public static void RefuseFile(string folder)
+    {
+        ArgumentNullException.ThrowIfNull(folder);
+        if (File.Exists(folder) || (!Directory.Exists(folder) && new FileInfo(folder).LinkTarget != null))
+        {
+            throw new RunFolderException(folder, "is a file, not a folder; the output path names a folder to write (new, empty, or one this command wrote)");
+        }
+    }
+
     /// <summary>Whether an entry of this name is the lock's, which every folder rule leaves alone.</summary>
     public static bool IsLockFile(string name) => name is LockFile or WriterFile;
 
     /// <summary>Takes the lock on <paramref name="folder"/> (created if missing).</summary>
-    /// <exception cref="RunFolderException">Another process holds it.</exception>
+    /// <exception cref="RunFolderException">Another process holds it, or the path is a file.</exception>
     public static FolderLock Acquire(string folder)
     {
         ArgumentNullException.ThrowIfNull(folder);
+        RefuseFile(folder);
         Directory.CreateDirectory(folder);
         string path = Path.Combine(folder, LockFile);
         FileStream stream;
