@@ -32,6 +32,12 @@ internal static class JsonInput
             problem = $"not well-formed JSON ({e.Message})";
             return null;
         }
+        catch (InvalidOperationException)
+        {
+            // The duplicate-key check unescapes every key: one with a lone surrogate cannot be.
+            problem = "a key holds a lone surrogate escape (a \\uD800–\\uDFFF escape without its pair), which is not text";
+            return null;
+        }
         if (LoneSurrogate(document.RootElement, "") is string where)
         {
             document.Dispose();
@@ -40,6 +46,13 @@ internal static class JsonInput
         }
         problem = "";
         return document;
+    }
+
+    /// <summary>As <see cref="TryParse"/>, as a mutable node.</summary>
+    public static System.Text.Json.Nodes.JsonNode? TryParseNode(byte[] utf8, int maxDepth, out string problem)
+    {
+        using JsonDocument? document = TryParse(utf8, maxDepth, out problem);
+        return document == null ? null : System.Text.Json.Nodes.JsonNode.Parse(utf8, documentOptions: new JsonDocumentOptions { MaxDepth = maxDepth });
     }
 
     /// <summary>

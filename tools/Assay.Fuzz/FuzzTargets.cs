@@ -1,6 +1,9 @@
 using Assay.Config;
+using Assay.Features;
 using Assay.Fixtures;
 using Assay.Input;
+using Assay.Model;
+using Assay.Output;
 using Assay.Tokenization;
 using Assay.Weights;
 
@@ -22,7 +25,15 @@ public sealed class FuzzTargets
 {
     /// <summary>The target names, one per loader (and per text input format).</summary>
     public static readonly IReadOnlyList<string> Names =
-        ["safetensors", "index", "config", "vocab", "merges", "tokenizer-json", "lines", "jsonl", "csv", "tsv"];
+        ["safetensors", "index", "config", "vocab", "merges", "tokenizer-json", "lines", "jsonl", "csv", "tsv", "progress", "run-npy"];
+
+    /// <summary>The unfinished run's options: 24 texts, hidden states and conditional means, a commit every 4 rows.</summary>
+    /// <remarks>Made on use, never in a static initializer: instrumented engine code may only run inside the fuzzer's loop.</remarks>
+    private static RunOptions RunSettings() => new()
+    {
+        Extraction = new ExtractionOptions { Features = [new HiddenStateFeature(-1), new ConditionalMeanFeature()] },
+        CommitRows = 4,
+    };
 
     // A text with letters, digits, spaces, punctuation, non-ASCII and the end-of-text marker, so that an opened
     // tokenizer is used on every pre-tokenizer branch.
@@ -44,6 +55,8 @@ public sealed class FuzzTargets
             [new RawTensor("wte.weight", "F32", [2, 2], SafetensorsWriter.Encode([1f, 2f, 3f, 4f], "F32"))]);
         SafetensorsWriter.Write(Path.Combine(folder, "sharded", "part-2.safetensors"),
             [new RawTensor("wpe.weight", "BF16", [3], SafetensorsWriter.Encode([0.5f, -1f, 2f], "BF16"))]);
+        SyntheticCheckpoint.Write(new CheckpointSpec(), Path.Combine(folder, "model"));
+        File.WriteAllLines(Path.Combine(folder, "run-input.txt"), Enumerable.Range(0, 24).Select(i => $"text {i}: the keeper of the light"));
     }
 
     /// <summary>Runs one target on one input.</summary>
@@ -76,6 +89,12 @@ public sealed class FuzzTargets
             case "csv":
             case "tsv":
                 Expect<TextInputException>(Write("input." + target, input), Records);
+                break;
+            case "progress":
+                Resume(RunFolder.ProgressFile, input);
+                break;
+            case "run-npy":
+                Resume("cmean.npy", input);
                 break;
             default:
                 throw new ArgumentException($"unknown fuzz target '{target}'; expected one of {string.Join(", ", Names)}", nameof(target));
@@ -144,6 +163,60 @@ public sealed class FuzzTargets
             }
         }
         _ = tokenizer.Decode(ids);
+    }
+
+    /// <summary>
+    /// A copy of the unfinished run with <paramref name="file"/> replaced by the input, resumed: it must finish with
+    /// all 24 rows or be refused with a RunFolderException naming the folder.
+    /// </summary>
+    private void Resume(string file, byte[] input)
+    {
+        LanguageModel model = LanguageModel.Open(Path.Combine(_folder, "model"));
+        string runInput = Path.Combine(_folder, "run-input.txt");
+        string interrupted = Path.Combine(_folder, "interrupted");
+        if (!File.Exists(Path.Combine(_folder, "interrupted.done")))
+        {
+            // Made once, at the first execution (the folder outlives the fuzzer's forks): an unfinished run stopped
+            // after its second commit, whose files the run-folder targets replace.
+            if (Directory.Exists(interrupted))
+            {
+                Directory.Delete(interrupted, recursive: true);
+            }
+            using var cancel = new CancellationTokenSource();
+            try
+            {
+                ExtractionRun.Execute(model, runInput, interrupted, RunSettings(), new Stop(p => { if (p.Accepted > 8) { cancel.Cancel(); } }), cancel.Token);
+            }
+            catch (OperationCanceledException)
+            {
+                // Stopped as meant: the folder holds 8 committed rows.
+            }
+            File.WriteAllText(Path.Combine(_folder, "interrupted.done"), "");
+        }
+        string run = Path.Combine(_folder, "resumed");
+        if (Directory.Exists(run))
+        {
+            Directory.Delete(run, recursive: true);
+        }
+        Directory.CreateDirectory(run);
+        foreach (string f in Directory.GetFiles(interrupted))
+        {
+            File.Copy(f, Path.Combine(run, Path.GetFileName(f)));
+        }
+        File.WriteAllBytes(Path.Combine(run, file), input);
+        Expect<RunFolderException>(Path.Combine(run, file), _ =>
+        {
+            RunSummary s = ExtractionRun.Execute(model, runInput, run, RunSettings() with { Resume = true });
+            if (s.Accepted != 24)
+            {
+                throw new ContractBrokenException($"the resumed run holds {s.Accepted} rows; the input has 24");
+            }
+        });
+    }
+
+    private sealed class Stop(Action<RunProgress> report) : IProgress<RunProgress>
+    {
+        public void Report(RunProgress value) => report(value);
     }
 
     private static void Records(string path)

@@ -102,7 +102,7 @@ public sealed class LoaderPropertyTests : IDisposable
         string[] extensions = [".jsonl", ".csv", ".tsv", ".txt"];
         int n = 0;
         Gen<(int Seed, int Kind, int Format)> cases =
-            from seed in Gen.Choose(0, int.MaxValue) from kind in Gen.Choose(0, 5) from format in Gen.Choose(0, 3)
+            from seed in Gen.Choose(0, int.MaxValue) from kind in Gen.Choose(0, 6) from format in Gen.Choose(0, 3)
             select (seed, kind, format);
         Prop.ForAll(cases.ToArbitrary(), c =>
         {
@@ -125,9 +125,10 @@ public sealed class LoaderPropertyTests : IDisposable
 
     /// <summary>
     /// Byte-level mutations of a valid file: 0 flip bytes, 1 insert invalid UTF-8, 2 truncate, 3 duplicate a slice,
-    /// 4 nest the JSON deeply, 5 replace a digit run with a number past 64 bits.
+    /// 4 nest the JSON deeply, 5 replace a digit run with a number past 64 bits, 6 insert JSON escapes (lone and paired
+    /// surrogates, NUL, malformed escapes) or a key given twice.
     /// </summary>
-    private static byte[] Mutate(byte[] valid, int seed, int kind)
+    internal static byte[] Mutate(byte[] valid, int seed, int kind)
     {
         var rng = new Random(seed);
         var bytes = new List<byte>(valid);
@@ -152,6 +153,15 @@ public sealed class LoaderPropertyTests : IDisposable
             {
                 int at = rng.Next(bytes.Count), length = rng.Next(bytes.Count - at);
                 bytes.InsertRange(rng.Next(bytes.Count), bytes.GetRange(at, length));
+                break;
+            }
+            case 6:
+            {
+                string[] escapes = ["\\ud800", "\\udc00", "\\ud83d\\ude42", "\\ude42\\ud83d", "\\u0000", "\\x", "\\u12", "\\", "\", \"text\": \"dup"];
+                for (int i = 0; i < 1 + rng.Next(3); i++)
+                {
+                    bytes.InsertRange(rng.Next(bytes.Count), Encoding.UTF8.GetBytes(escapes[rng.Next(escapes.Length)]));
+                }
                 break;
             }
             case 4:

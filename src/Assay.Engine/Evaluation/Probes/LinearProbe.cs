@@ -173,7 +173,7 @@ public sealed class LinearProbe
     {
         try
         {
-            return JsonNode.Parse(InputFile.ReadAllBytes(path, ProbeFileBytes))!.AsObject();
+            return (JsonInput.TryParseNode(InputFile.ReadAllBytes(path, ProbeFileBytes), 64, out string problem) ?? throw new System.Text.Json.JsonException(problem)).AsObject();
         }
         catch (Exception e) when (e is System.Text.Json.JsonException or InvalidOperationException or NullReferenceException)
         {

@@ -360,7 +360,7 @@ public static class Study
     {
         try
         {
-            return JsonNode.Parse(InputFile.ReadAllBytes(path));
+            return JsonInput.TryParseNode(InputFile.ReadAllBytes(path), 64, out _);
         }
         catch (JsonException)
         {

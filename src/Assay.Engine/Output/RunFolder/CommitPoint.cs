@@ -36,8 +36,12 @@ internal sealed class CommitPoint
         JsonObject o;
         try
         {
-            o = JsonNode.Parse(InputFile.ReadAllBytes(Path.Combine(folder, RunFolder.ProgressFile))) as JsonObject
-                ?? throw new JsonException("not a JSON object");
+            o = JsonInput.TryParseNode(InputFile.ReadAllBytes(Path.Combine(folder, RunFolder.ProgressFile)), 64, out string problem) switch
+            {
+                JsonObject parsed => parsed,
+                null => throw new JsonException(problem),
+                _ => throw new JsonException("not a JSON object"),
+            };
         }
         catch (JsonException e)
         {

@@ -111,7 +111,7 @@ public sealed class RunRecord
         byte[] bytes = InputFile.ReadAllBytes(path);
         try
         {
-            var record = (JsonObject)JsonNode.Parse(bytes)!;
+            var record = (JsonObject)(JsonInput.TryParseNode(bytes, 64, out string problem) ?? throw new JsonException(problem));
             JsonNode c = record["counts"]!;
             var counts = new RunCounts(c["read"]!.GetValue<long>(), c["accepted"]!.GetValue<long>(), c["rejected"]!.GetValue<long>(),
                 c["truncated_rows"]!.GetValue<long>(), c["tokens"]!.GetValue<long>());
