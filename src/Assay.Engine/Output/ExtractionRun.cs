@@ -19,8 +19,8 @@ namespace Assay.Output;
 /// </summary>
 public static class ExtractionRun
 {
-    /// <summary>2: values spelled as on the command line (jsonl, head), JSON written unescaped (&lt;f4, +).</summary>
-    private const int FormatVersion = 2;
+    /// <summary>3: record.json keeps every output file's size and SHA-256, and a piped input is marked "stream" (2: values spelled as on the command line, JSON unescaped).</summary>
+    private const int FormatVersion = 3;
 
     /// <summary>
     /// What an extraction of <paramref name="inputPath"/> with <paramref name="options"/> will write (see
