@@ -6,9 +6,12 @@ namespace Assay;
 internal static class FileDigest
 {
     /// <summary>Lower-case hexadecimal SHA-256 of the file at <paramref name="path"/>.</summary>
-    public static string Sha256(string path)
+    public static string Sha256(string path) => Of(path).Sha256;
+
+    /// <summary>The file's length and lower-case hexadecimal SHA-256, from one read.</summary>
+    public static (long Bytes, string Sha256) Of(string path)
     {
-        using FileStream file = InputFile.OpenRead(path);
-        return Convert.ToHexStringLower(SHA256.HashData(file));
+        using FileStream file = InputFile.OpenRead(path, 1 << 20, FileOptions.SequentialScan);
+        return (file.Length, Convert.ToHexStringLower(SHA256.HashData(file)));
     }
 }

@@ -102,7 +102,8 @@ public static class InputFile
     }
 
     /// <summary>The path with its symbolic links followed; a loop is refused.</summary>
-    private static string Resolve(string path)
+    /// <exception cref="InputFileException">A symbolic link loop.</exception>
+    internal static string Resolve(string path)
     {
         try
         {

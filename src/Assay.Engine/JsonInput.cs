@@ -38,7 +38,8 @@ internal static class JsonInput
             problem = "a key holds a lone surrogate escape (a \\uD800–\\uDFFF escape without its pair), which is not text";
             return null;
         }
-        if (LoneSurrogate(document.RootElement, "") is string where)
+        // Only a \u escape can make a lone surrogate (valid UTF-8 cannot): most documents skip the walk.
+        if (utf8.AsSpan().IndexOf("\\u"u8) >= 0 && LoneSurrogate(document.RootElement, "") is string where)
         {
             document.Dispose();
             problem = $"{where} holds a lone surrogate escape (a \\uD800–\\uDFFF escape without its pair), which is not text";

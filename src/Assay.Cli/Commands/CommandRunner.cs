@@ -10,7 +10,8 @@ internal static class CommandRunner
     /// <summary>Bad input or usage.</summary>
     public const int BadInput = 2;
 
-    public static int Run(Func<int> body)
+    /// <summary>Runs <paramref name="body"/>; an input error becomes one line on <paramref name="err"/> (default: stderr) and exit code 2.</summary>
+    public static int Run(Func<int> body, TextWriter? err = null)
     {
         try
         {
@@ -18,12 +19,12 @@ internal static class CommandRunner
         }
         catch (InvalidInputException e)
         {
-            Console.Error.WriteLine($"assay: {e.Message}");
+            (err ?? Console.Error).WriteLine($"assay: {e.Message}");
             return BadInput;
         }
         catch (Exception e) when (e is DirectoryNotFoundException or FileNotFoundException or ArgumentException)
         {
-            Console.Error.WriteLine($"assay: {Message(e)}");
+            (err ?? Console.Error).WriteLine($"assay: {Message(e)}");
             return BadInput;
         }
     }

@@ -128,10 +128,6 @@ public sealed class TextInputReader : IDisposable
         };
     }
 
-    /// <summary>True when <paramref name="path"/> is standard input or a FIFO, which can be read only once.</summary>
-    public static bool IsPipe(string path) =>
-        path == StandardInput || ((File.Exists(path) || IsLink(path)) && InputFile.NotRegular(path) == InputFile.Fifo);
-
     private static bool IsLink(string path) => new FileInfo(path).LinkTarget != null;
 
     /// <summary>UTF-16 text read as UTF-8 would be NUL-riddled records: refused by its byte-order mark.</summary>

@@ -1,5 +1,3 @@
-using System.Security.Cryptography;
-
 namespace Assay.Model;
 
 /// <summary>One file of a model folder with its size and SHA-256.</summary>
@@ -15,9 +13,8 @@ public sealed record ModelFile(string Name, long Bytes, string Sha256)
         var files = new List<ModelFile>();
         foreach (string path in Directory.GetFiles(folder).Order(StringComparer.Ordinal))
         {
-            using FileStream stream = InputFile.OpenRead(path);
-            byte[] hash = SHA256.HashData(stream);
-            files.Add(new ModelFile(Path.GetFileName(path), stream.Length, Convert.ToHexStringLower(hash)));
+            (long bytes, string sha) = FileDigest.Of(path);
+            files.Add(new ModelFile(Path.GetFileName(path), bytes, sha));
         }
         return files;
     }

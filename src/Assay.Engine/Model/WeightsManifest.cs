@@ -167,15 +167,7 @@ public static class WeightsManifest
             foreach (string entry in Directory.EnumerateFileSystemEntries(path).Order(StringComparer.Ordinal))
             {
                 string name = prefix + Path.GetFileName(entry);
-                string target;
-                try
-                {
-                    target = File.ResolveLinkTarget(entry, returnFinalTarget: true)?.FullName ?? entry;
-                }
-                catch (IOException e)
-                {
-                    throw new InputFileException(entry, $"{entry}: a symbolic link loop (the links never reach a file: {e.Message.TrimEnd('.')})");
-                }
+                string target = InputFile.Resolve(entry);
                 if (target != entry && !Inside(Path.GetFullPath(target), realRoot) && !Inside(Path.GetFullPath(target), root))
                 {
                     outside[name] = $"{entry}: a link to {target}, outside the model folder";
@@ -190,8 +182,8 @@ public static class WeightsManifest
                     Walk(entry, name + "/", depth + 1);
                     continue;
                 }
-                using FileStream stream = InputFile.OpenRead(entry);
-                files.Add(new ModelFile(name, stream.Length, Convert.ToHexStringLower(System.Security.Cryptography.SHA256.HashData(stream))));
+                (long bytes, string sha) = FileDigest.Of(entry);
+                files.Add(new ModelFile(name, bytes, sha));
             }
         }
     }

@@ -36,9 +36,9 @@ public static class ExtractionRun
         OutputFile[] outputs = [.. extractor.Outputs.Select(o => new OutputFile(o, options.Precision))];
         long[] bytes = [.. outputs.Select(o => (long)o.Output.Width * NpyFormat.ElementBytes(o.Descr))];
         int largest = Array.IndexOf(bytes, bytes.Max());
-        if (TextInputReader.IsPipe(inputPath))
+        if (TextInputReader.Check(inputPath))
         {
-            return null;
+            return null;   // a pipe: reading it to count its lines would use it up
         }
         long lines = 0;
         bool endsInLineBreak = true;
@@ -80,7 +80,7 @@ public static class ExtractionRun
             throw new ArgumentException("resume and overwrite exclude each other: resume continues the run in the folder, overwrite replaces it", nameof(options));
         }
         var extractor = new FeatureExtractor(model, options.Extraction);
-        if (options.Resume && TextInputReader.IsPipe(inputPath))
+        if (options.Resume && TextInputReader.Check(inputPath))
         {
             // Said before the pipe is opened, which would wait for its writer.
             throw new ArgumentException($"{inputPath} is a pipe, read once: a run from it cannot resume; start it over with --overwrite, or extract from a file", nameof(options));

@@ -11,10 +11,11 @@ public sealed record RunFeatures(double[] Values, int Rows, int Width, IReadOnly
     /// probabilities, <c>words-loglik</c> → its log-likelihoods).
     /// </summary>
     /// <exception cref="RunFolderException">No finished run, or it holds no such feature (the message lists what it holds).</exception>
-    public static string Resolve(string runFolder, string feature)
+    public static string Resolve(string runFolder, string feature) => Resolve(runFolder, RunRecord.Read(runFolder), feature);
+
+    private static string Resolve(string runFolder, RunRecord record, string feature)
     {
         ArgumentNullException.ThrowIfNull(feature);
-        RunRecord record = RunRecord.Read(runFolder);
         HashSet<string> stems = [.. record.Files.Select(f => Path.GetFileNameWithoutExtension(f.File))];
         if (stems.Contains(feature))
         {
@@ -42,7 +43,7 @@ public sealed record RunFeatures(double[] Values, int Rows, int Width, IReadOnly
         throw new RunFolderException(runFolder, $"has no feature \"{feature}\"{(stem != null ? $" ({stem}.npy)" : "")}; it has {known}");
     }
 
-    /// <summary>Reads one feature (named as <see cref="Resolve"/> takes it; float32, float16 or int32, as extract writes them) and rows.csv of a run folder.</summary>
+    /// <summary>Reads one feature (named as <see cref="Resolve(string, string)"/> takes it; float32, float16 or int32, as extract writes them) and rows.csv of a run folder.</summary>
     /// <exception cref="RunFolderException">The run is unfinished, the feature is missing, or the files disagree.</exception>
     public static RunFeatures Load(string runFolder, string feature)
     {
@@ -52,11 +53,12 @@ public sealed record RunFeatures(double[] Values, int Rows, int Width, IReadOnly
         {
             throw new RunFolderException(runFolder, $"holds no finished run ({RunFolder.RecordFile} is missing); finish it with assay extract --resume");
         }
-        string stem = Resolve(runFolder, feature);
+        RunRecord record = RunRecord.Read(runFolder);
+        string stem = Resolve(runFolder, record, feature);
         string path = Path.Combine(runFolder, stem + ".npy");
         byte[] bytes = InputFile.ReadAllBytes(path, Array.MaxLength);
         // The bytes are in memory anyway: a file changed since its run finished is caught by the record's SHA-256.
-        foreach ((string file, long length, string sha) in RunRecord.Read(runFolder).Digests.Where(d => d.File == stem + ".npy"))
+        foreach ((string file, long length, string sha) in record.Digests.Where(d => d.File == stem + ".npy"))
         {
             string actual = Convert.ToHexStringLower(System.Security.Cryptography.SHA256.HashData(bytes));
             if (bytes.LongLength != length || actual != sha)

@@ -17,7 +17,7 @@ public sealed class DamagedRunFolderTests
 {
     private static readonly LanguageModel Model = LanguageModel.Open(Checkpoints.Folder(FeatureExtractorTests.Spec));
 
-    private static RunOptions Options(RunShard? shard = null) => new()
+    internal static RunOptions Options(RunShard? shard = null) => new()
     {
         Extraction = new ExtractionOptions { Prompt = PromptTemplate.Parse("{text} It is a kind of"), Features = [new HiddenStateFeature(-1), new ConditionalMeanFeature()] },
         CommitRows = 8,
@@ -25,7 +25,7 @@ public sealed class DamagedRunFolderTests
     };
 
     /// <summary>An extraction of 40 texts stopped after its first commit (8 rows), while it computes the second group.</summary>
-    private static (string Input, string Run) Interrupted(TempFolder temp)
+    internal static (string Input, string Run) Interrupted(TempFolder temp)
     {
         string input = ExtractionRunTests.WriteInput(temp, 40);
         string run = temp.File("run");

@@ -17,8 +17,11 @@ namespace Assay.Tests.Hardening;
 public sealed class LoaderPropertyTests : IDisposable
 {
     /// <summary>Cases per property: 400 in the default run; <c>ASSAY_PROPERTY_CASES</c> sets more for a long run.</summary>
-    private static readonly int Cases =
-        int.TryParse(Environment.GetEnvironmentVariable("ASSAY_PROPERTY_CASES"), out int n) && n > 0 ? n : 400;
+    private static readonly int Cases = CasesOr(400);
+
+    /// <summary>Cases per property: <c>ASSAY_PROPERTY_CASES</c> when set, else <paramref name="byDefault"/>.</summary>
+    internal static int CasesOr(int byDefault) =>
+        int.TryParse(Environment.GetEnvironmentVariable("ASSAY_PROPERTY_CASES"), out int n) && n > 0 ? n : byDefault;
 
     private readonly TempFolder _temp = new();
 

@@ -21,7 +21,7 @@ public sealed class OutputPathTests
         File.WriteAllText(file, "mine");
         string expected = $"assay: {file}: is a file, not a folder; the output path names a folder to write (new, empty, or one this command wrote)";
 
-        Check(() => ExtractCommand.Run(ExtractCommandTests.Request(input, file, "hidden"), TextWriter.Null, Console.Error, CancellationToken.None));
+        Check(() => ExtractCommand.Run(ExtractCommandTests.Request(input, file, "hidden"), TextWriter.Null, TextWriter.Null, CancellationToken.None));
 
         string run = temp.File("run");
         ExtractionRun.Execute(LanguageModel.Open(Checkpoints.Folder(FeatureExtractorTests.Spec)), input, run, new RunOptions());
@@ -34,16 +34,7 @@ public sealed class OutputPathTests
         void Check(Func<int> body)
         {
             var err = new StringWriter();
-            TextWriter saved = Console.Error;
-            Console.SetError(err);
-            try
-            {
-                Assert.Equal(2, CommandRunner.Run(body));
-            }
-            finally
-            {
-                Console.SetError(saved);
-            }
+            Assert.Equal(2, CommandRunner.Run(body, err));
             Assert.Equal(expected, err.ToString().TrimEnd());
             Assert.Equal("mine", File.ReadAllText(file));
         }

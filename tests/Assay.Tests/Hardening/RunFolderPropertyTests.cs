@@ -18,8 +18,7 @@ namespace Assay.Tests.Hardening;
 public sealed class RunFolderPropertyTests : IDisposable
 {
     /// <summary>Cases: 80 in the default run (each resumes an extraction); <c>ASSAY_PROPERTY_CASES</c> sets more.</summary>
-    private static readonly int Cases =
-        int.TryParse(Environment.GetEnvironmentVariable("ASSAY_PROPERTY_CASES"), out int n) && n > 0 ? n : 80;
+    private static readonly int Cases = LoaderPropertyTests.CasesOr(80);
 
     private static readonly string[] Files = [RunFolder.ProgressFile, RunFolder.RowsFile, RunFolder.RejectsFile, "hidden.layer2.last.npy", "cmean.npy"];
 
@@ -29,22 +28,10 @@ public sealed class RunFolderPropertyTests : IDisposable
     private readonly string _input;
     private readonly string _interrupted;
 
-    public RunFolderPropertyTests()
-    {
-        _input = ExtractionRunTests.WriteInput(_temp, 40);
-        _interrupted = _temp.File("interrupted");
-        using var cancel = new CancellationTokenSource();
-        Assert.ThrowsAny<OperationCanceledException>(() => ExtractionRun.Execute(Model, _input, _interrupted, Options(),
-            new ExtractionRunTests.SyncProgress(p => { if (p.Accepted > 16) { cancel.Cancel(); } }), cancel.Token));
-    }
+    /// <summary>One unfinished run (8 rows committed) that every case copies.</summary>
+    public RunFolderPropertyTests() => (_input, _interrupted) = DamagedRunFolderTests.Interrupted(_temp);
 
     public void Dispose() => _temp.Dispose();
-
-    private static RunOptions Options() => new()
-    {
-        Extraction = new ExtractionOptions { Prompt = PromptTemplate.Parse("{text} It is a kind of"), Features = [new HiddenStateFeature(-1), new ConditionalMeanFeature()] },
-        CommitRows = 8,
-    };
 
     [Fact]
     public void A_mutated_run_folder_resumes_whole_or_is_refused_naming_the_folder()
@@ -76,7 +63,7 @@ public sealed class RunFolderPropertyTests : IDisposable
             File.WriteAllBytes(path, bytes);
             try
             {
-                RunSummary s = ExtractionRun.Execute(Model, _input, run, Options() with { Resume = true });
+                RunSummary s = ExtractionRun.Execute(Model, _input, run, DamagedRunFolderTests.Options() with { Resume = true });
                 Assert.Equal(40, s.Accepted);
             }
             catch (RunFolderException e)

@@ -51,7 +51,7 @@ public sealed class SpecialFileTests
         MakeFifo(path);
         var err = new StringWriter();
         // inspect opens every file of the folder (it hashes them too): nothing may open the FIFO.
-        int code = await Task.Run(() => CliRun(() => InspectCommand.Run(folder, TextWriter.Null), err)).WaitAsync(Bound);
+        int code = await Task.Run(() => CommandRunner.Run(() => InspectCommand.Run(folder, TextWriter.Null), err)).WaitAsync(Bound);
         Assert.Equal(2, code);
         Assert.Equal($"assay: {path}: a FIFO (named pipe), not a regular file; the engine reads only regular files", err.ToString().TrimEnd());
     }
@@ -79,7 +79,7 @@ public sealed class SpecialFileTests
         string words = temp.File("words.txt");
         MakeFifo(words);
         var err = new StringWriter();
-        int code = await Task.Run(() => CliRun(() => ExtractCommand.Run(ExtractCommandTests.Request(ExtractionRunTests.WriteInput(temp, 4), temp.File("run"), "words", words: words),
+        int code = await Task.Run(() => CommandRunner.Run(() => ExtractCommand.Run(ExtractCommandTests.Request(ExtractionRunTests.WriteInput(temp, 4), temp.File("run"), "words", words: words),
             TextWriter.Null, err, CancellationToken.None), err)).WaitAsync(Bound);
         Assert.Equal(2, code);
         Assert.Contains($"{words}: a FIFO (named pipe), not a regular file", err.ToString(), StringComparison.Ordinal);
@@ -101,13 +101,13 @@ public sealed class SpecialFileTests
         string entry = temp.File("entry.json");
         Assert.Equal(0, ManifestCommand.Pin(Checkpoints.Folder(FeatureExtractorTests.Spec), entry, "MIT", "test fixture", false, TextWriter.Null));
         var err = new StringWriter();
-        int code = await Task.Run(() => CliRun(() => ManifestCommand.Verify(folder, entry, TextWriter.Null, err), err)).WaitAsync(Bound);
+        int code = await Task.Run(() => CommandRunner.Run(() => ManifestCommand.Verify(folder, entry, TextWriter.Null, err), err)).WaitAsync(Bound);
         Assert.Equal(1, code);
         Assert.Contains($"assay: {weights}: a link to /dev/zero, outside the model folder", err.ToString(), StringComparison.Ordinal);
         File.Delete(weights);
         MakeFifo(weights);
         err = new StringWriter();
-        code = await Task.Run(() => CliRun(() => ManifestCommand.Verify(folder, entry, TextWriter.Null, err), err)).WaitAsync(Bound);
+        code = await Task.Run(() => CommandRunner.Run(() => ManifestCommand.Verify(folder, entry, TextWriter.Null, err), err)).WaitAsync(Bound);
         Assert.Equal(2, code);
         Assert.Equal($"assay: {weights}: a FIFO (named pipe), not a regular file; the engine reads only regular files", err.ToString().TrimEnd());
     }
@@ -129,7 +129,7 @@ public sealed class SpecialFileTests
         File.CreateSymbolicLink(input, temp.File("other.jsonl"));
         File.CreateSymbolicLink(temp.File("other.jsonl"), input);
         var err = new StringWriter();
-        Assert.Equal(2, CliRun(() => ExtractCommand.Run(ExtractCommandTests.Request(input, temp.File("run"), "hidden"), TextWriter.Null, err, CancellationToken.None), err));
+        Assert.Equal(2, CommandRunner.Run(() => ExtractCommand.Run(ExtractCommandTests.Request(input, temp.File("run"), "hidden"), TextWriter.Null, err, CancellationToken.None), err));
         Assert.StartsWith($"assay: {input}: a symbolic link loop", err.ToString(), StringComparison.Ordinal);
         Assert.Single(err.ToString().TrimEnd().Split('\n'));
     }
@@ -185,7 +185,7 @@ public sealed class SpecialFileTests
         MakeFifo(fifo);
         Task writer = Task.Run(() => File.WriteAllBytes(fifo, content));
         var seen = new List<RunProgress>();
-        await Task.Run(() => ExtractionRun.Execute(m, fifo, temp.File("from-pipe"), options, new SyncProgress<RunProgress>(seen.Add))).WaitAsync(Bound);
+        await Task.Run(() => ExtractionRun.Execute(m, fifo, temp.File("from-pipe"), options, new ExtractionRunTests.SyncProgress(seen.Add))).WaitAsync(Bound);
         await writer.WaitAsync(Bound);
         Assert.All(seen, p => Assert.Null(p.InputFraction));
 
@@ -245,26 +245,5 @@ public sealed class SpecialFileTests
         Assert.Equal($"{temp.Path}: a folder; an input is a regular file, a FIFO or - (standard input)",
             Assert.Throws<InputFileException>(() => TextInputReader.Open(temp.Path)).Message);
         Assert.StartsWith("/dev/zero: a character device", Assert.Throws<InputFileException>(() => TextInputReader.Open("/dev/zero")).Message, StringComparison.Ordinal);
-    }
-
-    /// <summary>A command body run as the CLI runs it, with its error line captured.</summary>
-    private static int CliRun(Func<int> body, StringWriter err)
-    {
-        TextWriter saved = Console.Error;
-        Console.SetError(err);
-        try
-        {
-            return CommandRunner.Run(body);
-        }
-        finally
-        {
-            Console.SetError(saved);
-        }
-    }
-
-    /// <summary>An IProgress that reports on the calling thread (Progress&lt;T&gt; posts to the thread pool).</summary>
-    private sealed class SyncProgress<T>(Action<T> report) : IProgress<T>
-    {
-        public void Report(T value) => report(value);
     }
 }

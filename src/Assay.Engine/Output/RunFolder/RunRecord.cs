@@ -59,8 +59,8 @@ public sealed class RunRecord
         var digests = new List<(string, long, string)>();
         foreach (string file in outputs.Select(o => o.File).Append(RunFolder.RowsFile).Append(RunFolder.RejectsFile))
         {
-            using FileStream stream = InputFile.OpenRead(Path.Combine(folder, file), 1 << 20, FileOptions.SequentialScan);
-            digests.Add((file, stream.Length, Convert.ToHexStringLower(SHA256.HashData(stream))));
+            (long bytes, string sha) = FileDigest.Of(Path.Combine(folder, file));
+            digests.Add((file, bytes, sha));
         }
         return new(settings, counts, outputs, shard, shardInputRows, "", digests);
     }
@@ -84,12 +84,11 @@ public sealed class RunRecord
             {
                 return $"{file}: missing";
             }
-            using FileStream stream = InputFile.OpenRead(path, 1 << 20, FileOptions.SequentialScan);
-            if (stream.Length != bytes)
+            (long length, string actual) = FileDigest.Of(path);
+            if (length != bytes)
             {
-                return string.Create(CultureInfo.InvariantCulture, $"{file}: {stream.Length:N0} bytes; the record kept {bytes:N0}");
+                return string.Create(CultureInfo.InvariantCulture, $"{file}: {length:N0} bytes; the record kept {bytes:N0}");
             }
-            string actual = Convert.ToHexStringLower(SHA256.HashData(stream));
             if (actual != sha)
             {
                 return $"{file}: SHA-256 {actual}; the record kept {sha}";
