@@ -49,7 +49,7 @@ public class KernelBenchmarks
         _qkvWeights = PackedMatrix.FromRowMajor(Normal(D * 3 * D, 0.02), D, 3 * D, Normal(3 * D, 0.02), Weights);
         _mlpIn = PackedMatrix.FromRowMajor(Normal(D * Inner, 0.02), D, Inner, Normal(Inner, 0.02), Weights);
         _head = PackedMatrix.FromTransposed(Normal(Vocabulary * D, 0.02), D, Vocabulary,
-            Weights == WeightPrecision.Integer8 ? WeightPrecision.BFloat16 : Weights);
+            precision: Weights == WeightPrecision.Integer8 ? WeightPrecision.BFloat16 : Weights);
         _qkv = Normal(Tokens * 3 * D, 1);
         _attention = new float[Tokens * D];
         _scores = new float[Tokens];
@@ -73,7 +73,7 @@ public class KernelBenchmarks
 
     /// <summary>One causal attention head over 256 positions.</summary>
     [Benchmark]
-    public void AttentionHead() => K.CausalAttentionHead(_qkv, _attention, Tokens, D, 0, D / Heads, _scores, _keys, _variant);
+    public void AttentionHead() => K.CausalAttentionGroup(_qkv, _attention, Tokens, new AttentionShape(Heads, Heads, D / Heads, 0), 0, _scores, _keys, _variant);
 
     /// <summary>The next-word distribution: a stable softmax over the vocabulary.</summary>
     [Benchmark]

@@ -36,8 +36,8 @@ internal static class InspectCommand
         }
         ModelConfig c = ModelConfig.Load(Path.Combine(folder, ModelConfig.FileName));
         o.WriteLine($"model         {folder}");
-        o.WriteLine(string.Create(inv, $"architecture  GPT-2 family: {c.Layers} layers, width {c.Width}, {c.Heads} heads of {c.HeadWidth}, MLP {c.InnerWidth}, context {c.ContextLength}, vocabulary {c.VocabularySize}"));
-        o.WriteLine(string.Create(inv, $"              activation {Describe(c.Activation)}, norm epsilon {c.NormEpsilon:G6}, output head {(c.TiedHead ? "tied to the token embedding" : "separate (lm_head.weight)")}"));
+        o.WriteLine(string.Create(inv, $"architecture  {c.FamilyName} (model_type {c.ModelType}): {c.Layers} layers, width {c.Width}, {c.Heads} heads of {c.HeadWidth}{(c.KeyValueHeads == c.Heads ? "" : string.Create(inv, $" on {c.KeyValueHeads} key/value heads"))}, MLP {c.InnerWidth}, context {c.ContextLength}, vocabulary {c.VocabularySize}"));
+        o.WriteLine($"recipe        {c.Recipe}");
         o.WriteLine(string.Create(inv, $"parameters    {c.ParameterCount:N0} (tied head counted once)"));
         o.WriteLine(string.Create(inv, $"layers        0 … {c.Layers} for hidden:LAYER (0 = embeddings, k = after block k, {c.Layers} = after the final norm; −1 … −{c.Layers + 1} count from the end)"));
         o.WriteLine("weights       " + string.Join(", ", Storages.Select(p => string.Create(inv, $"{Assay.Spellings.Of(p)} {LanguageModel.WeightBytesFor(c, p) / 1048576.0:N1} MiB"))) + " in memory (--weights)");
@@ -55,7 +55,8 @@ internal static class InspectCommand
         string? problem = Check(folder, c, tokenizer, checkpoint, out CheckpointSummary? summary);
         if (summary is not null)
         {
-            o.WriteLine(string.Create(inv, $"              {summary.ParameterValues:N0} parameter values stored; {summary.SkippedBuffers} mask buffers skipped; names {(summary.NamePrefix.Length == 0 ? "without" : "with")} the \"transformer.\" prefix"));
+            o.WriteLine(string.Create(inv, $"              {summary.ParameterValues:N0} parameter values stored; {summary.SkippedBuffers} buffers skipped (causal masks, rotary tables)")
+                + (c.Family == ModelFamily.Gpt2 ? $"; names {(summary.NamePrefix.Length == 0 ? "without" : "with")} the \"transformer.\" prefix" : ""));
         }
 
         o.WriteLine();
@@ -110,12 +111,18 @@ internal static class InspectCommand
         var report = new System.Text.Json.Nodes.JsonObject
         {
             ["model"] = folder,
-            ["family"] = "gpt2",
+            ["family"] = c.ModelType,
             ["architecture"] = new System.Text.Json.Nodes.JsonObject
             {
-                ["layers"] = c.Layers, ["width"] = c.Width, ["heads"] = c.Heads, ["head_width"] = c.HeadWidth, ["inner_width"] = c.InnerWidth,
-                ["context"] = c.ContextLength, ["vocabulary"] = c.VocabularySize, ["activation"] = Describe(c.Activation),
-                ["norm_epsilon"] = c.NormEpsilon, ["tied_head"] = c.TiedHead,
+                ["layers"] = c.Layers, ["width"] = c.Width, ["heads"] = c.Heads, ["kv_heads"] = c.KeyValueHeads, ["head_width"] = c.HeadWidth,
+                ["inner_width"] = c.InnerWidth, ["context"] = c.ContextLength, ["vocabulary"] = c.VocabularySize,
+                ["norm"] = c.Norm == NormKind.RmsNorm ? "rmsnorm" : "layernorm", ["norm_epsilon"] = c.NormEpsilon,
+                ["positions"] = c.Rotary is null ? "learned" : "rotary", ["rotary_dims"] = c.Rotary?.Dimensions, ["rotary_base"] = c.Rotary?.Base,
+                ["rotary_scaling"] = c.Rotary is null ? null : c.Rotary.Scaling.ToString().ToLowerInvariant(),
+                ["sliding_window"] = c.SlidingWindow == 0 ? null : c.SlidingWindow,
+                ["mlp"] = c.GatedMlp ? "gated" : "plain", ["activation"] = Describe(c.Activation),
+                ["parallel_residual"] = c.ParallelResidual, ["tied_head"] = c.TiedHead,
+                ["recipe"] = c.Recipe,
             },
             ["parameters"] = c.ParameterCount,
             ["hidden_layers"] = new System.Text.Json.Nodes.JsonArray([.. Enumerable.Range(0, c.Layers + 1).Select(l => System.Text.Json.Nodes.JsonValue.Create(l))]),
@@ -169,6 +176,8 @@ internal static class InspectCommand
     {
         Activation.GeluTanh => "GELU (tanh approximation)",
         Activation.GeluErf => "GELU (exact, erf)",
+        Activation.Silu => "SiLU",
         _ => "ReLU",
     };
+
 }

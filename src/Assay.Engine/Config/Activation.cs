@@ -12,4 +12,7 @@ public enum Activation
 
     /// <summary>max(0, x). config.json name "relu".</summary>
     Relu,
+
+    /// <summary>SiLU, x·σ(x) = x / (1 + e^(−x)), the gate of a gated MLP. config.json name "silu".</summary>
+    Silu,
 }

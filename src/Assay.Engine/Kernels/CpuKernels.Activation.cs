@@ -18,9 +18,39 @@ internal static partial class CpuKernels
             case Activation.GeluErf:
                 GeluErf(x);
                 break;
+            case Activation.Silu:
+                Silu(x);
+                break;
             default:
                 TensorPrimitives.Max(x, 0f, x);
                 break;
+        }
+    }
+
+    /// <summary>SiLU in place: x·σ(x), σ from TensorPrimitives.Sigmoid.</summary>
+    public static void Silu(Span<float> x)
+    {
+        Span<float> t = stackalloc float[ActivationChunk];
+        for (int i = 0; i < x.Length; i += ActivationChunk)
+        {
+            Span<float> xs = x.Slice(i, Math.Min(ActivationChunk, x.Length - i));
+            Span<float> ts = t[..xs.Length];
+            TensorPrimitives.Sigmoid(xs, ts);
+            TensorPrimitives.Multiply(xs, ts, xs);
+        }
+    }
+
+    /// <summary>
+    /// The gated MLP's inner step over <paramref name="rows"/> rows of [g | u] (2·m wide each): g ← SiLU(g) ⊙ u in
+    /// place, so the first m columns of each row (row stride 2·m) are the down projection's input.
+    /// </summary>
+    public static void SiluGate(Span<float> gateUp, int rows, int m)
+    {
+        for (int r = 0; r < rows; r++)
+        {
+            Span<float> g = gateUp.Slice(r * 2 * m, m);
+            Silu(g);
+            TensorPrimitives.Multiply(g, gateUp.Slice((r * 2 * m) + m, m), g);
         }
     }
 

@@ -105,19 +105,13 @@ internal sealed class PackedMatrix
     /// <summary>Packs a row-major K × N matrix (the [in, out] layout of GPT-2's projection layers).</summary>
     public static PackedMatrix FromRowMajor(ReadOnlySpan<float> b, int rows, int columns, ReadOnlySpan<float> bias = default,
         WeightPrecision precision = WeightPrecision.Binary32) =>
-        precision == WeightPrecision.Integer8 ? PackQuads(b, rows, columns, bias) : Pack(b, rows, columns, transposed: false, bias, precision);
+        precision == WeightPrecision.Integer8 ? PackQuads(b, rows, columns, transposed: false, bias) : Pack(b, rows, columns, transposed: false, bias, precision);
 
-    /// <summary>Packs the transpose of a row-major N × K matrix (an [out, in] layout, e.g. the token embedding
-    /// used as the output head: logits = h · Eᵀ).</summary>
-    public static PackedMatrix FromTransposed(ReadOnlySpan<float> bt, int rows, int columns,
-        WeightPrecision precision = WeightPrecision.Binary32)
-    {
-        if (precision == WeightPrecision.Integer8)
-        {
-            throw new ArgumentException("transposed packs (the embedding and head) are float32 or bfloat16", nameof(precision));
-        }
-        return Pack(bt, rows, columns, transposed: true, default, precision);
-    }
+    /// <summary>Packs the transpose of a row-major N × K matrix (an [out, in] layout: the token embedding used as the
+    /// output head, logits = h · Eᵀ, and the linear layers of the rotary families, y = x · Wᵀ + b).</summary>
+    public static PackedMatrix FromTransposed(ReadOnlySpan<float> bt, int rows, int columns, ReadOnlySpan<float> bias = default,
+        WeightPrecision precision = WeightPrecision.Binary32) =>
+        precision == WeightPrecision.Integer8 ? PackQuads(bt, rows, columns, transposed: true, bias) : Pack(bt, rows, columns, transposed: true, bias, precision);
 
     /// <summary>Copies column n of B (K values; for a transposed pack, row n of the source) into destination.</summary>
     public void CopyColumn(int n, Span<float> destination)
@@ -280,7 +274,7 @@ internal sealed class PackedMatrix
     /// Symmetric per-column int8: s_n = max_k |B[k, n]| / 127 (1 for an all-zero column) and
     /// q = round-to-even(B · (1 / s_n)), which lies in −127 … 127.
     /// </summary>
-    private static PackedMatrix PackQuads(ReadOnlySpan<float> source, int rows, int columns, ReadOnlySpan<float> bias)
+    private static PackedMatrix PackQuads(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias)
     {
         Check(source, rows, columns, bias);
         int panels = (columns + PanelWidth - 1) / PanelWidth;
@@ -293,7 +287,7 @@ internal sealed class PackedMatrix
             float max = 0;
             for (int k = 0; k < rows; k++)
             {
-                max = MathF.Max(max, MathF.Abs(source[(k * columns) + n]));
+                max = MathF.Max(max, MathF.Abs(source[transposed ? (n * rows) + k : (k * columns) + n]));
             }
             scales[n] = max > 0 ? max / 127f : 1f;
             inverse[n] = 1f / scales[n];
@@ -304,7 +298,7 @@ internal sealed class PackedMatrix
             int g = k / QuadDepth, kk = k % QuadDepth;
             for (int n = 0; n < columns; n++)
             {
-                int q = (int)Math.Clamp(MathF.Round(source[(k * columns) + n] * inverse[n]), -127f, 127f);
+                int q = (int)Math.Clamp(MathF.Round(source[transposed ? (n * rows) + k : (k * columns) + n] * inverse[n]), -127f, 127f);
                 int p = n / PanelWidth, j = n % PanelWidth;
                 quads[((((long)p * groups) + g) * PanelWidth * QuadDepth) + (j * QuadDepth) + kk] = (sbyte)q;
                 sums[n] += q;

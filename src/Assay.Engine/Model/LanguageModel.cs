@@ -7,7 +7,8 @@ using Assay.Weights;
 namespace Assay.Model;
 
 /// <summary>
-/// A GPT-2-family language model opened from a checkpoint folder (config.json, safetensors weights, tokenizer files),
+/// A decoder-only language model of one of the supported families (<see cref="ModelFamily"/>) opened from a checkpoint
+/// folder (config.json, safetensors weights, tokenizer files),
 /// with every parameter converted to float32 in memory (or its matrices to bfloat16, see <see cref="WeightPrecision"/>).
 /// Immutable once opened: one instance can serve forward passes
 /// from several threads at once.
@@ -52,7 +53,7 @@ public sealed class LanguageModel
     public static long WeightBytesFor(ModelConfig config, WeightPrecision precision)
     {
         ArgumentNullException.ThrowIfNull(config);
-        return Gpt2.Gpt2Layout.WeightBytes(config, precision);
+        return CheckpointLayout.For(config).WeightBytes(config, precision);
     }
 
     /// <summary>Opens a checkpoint folder: reads and validates config.json, the tokenizer and every tensor.</summary>
@@ -79,7 +80,7 @@ public sealed class LanguageModel
         TextTokenizer tokenizer = TextTokenizer.OpenFolder(folder);
         CheckTokenizer(tokenizer, config, configPath);
         using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
-        ModelWeights weights = Gpt2.Gpt2Layout.Load(checkpoint, config, configPath, precision);
+        ModelWeights weights = CheckpointLayout.For(config).Load(checkpoint, config, configPath, precision);
         return new LanguageModel(folder, config, tokenizer, weights);
     }
 
@@ -98,14 +99,14 @@ public sealed class LanguageModel
 
     /// <summary>
     /// Checks a checkpoint against a config without converting anything: every parameter the config implies is
-    /// present with its shape and a floating dtype, and nothing else is stored but the known mask buffers.
+    /// present with its shape and a floating dtype, and nothing else is stored but the family's known buffers.
     /// </summary>
     /// <exception cref="WeightsFormatException">The first mismatch, naming the tensor and its file.</exception>
     public static CheckpointSummary CheckCheckpoint(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath)
     {
         ArgumentNullException.ThrowIfNull(checkpoint);
         ArgumentNullException.ThrowIfNull(config);
-        return Gpt2.Gpt2Layout.Check(checkpoint, config, configPath);
+        return CheckpointLayout.For(config).Check(checkpoint, config, configPath);
     }
 
     /// <summary>

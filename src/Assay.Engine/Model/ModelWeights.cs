@@ -5,9 +5,9 @@ namespace Assay.Model;
 
 /// <summary>
 /// An opened model's parameters as the forward pass runs them: the input layer, the blocks in order, the final norm
-/// and the output head, each converted and packed for the kernels by its family's layout (e.g. <see cref="Gpt2.Gpt2Layout"/>).
+/// and the output head, each converted and packed for the kernels by its family's layout (<see cref="CheckpointLayout"/>).
 /// </summary>
-internal sealed class ModelWeights(IEmbedding embedding, IReadOnlyList<ITransformerBlock> blocks, LayerNormParameters finalNorm,
+internal sealed class ModelWeights(IEmbedding embedding, IReadOnlyList<ITransformerBlock> blocks, INorm finalNorm,
     OutputHead head, WeightPrecision precision, long headBytes)
 {
     public IEmbedding Embedding { get; } = embedding;
@@ -15,7 +15,7 @@ internal sealed class ModelWeights(IEmbedding embedding, IReadOnlyList<ITransfor
     public IReadOnlyList<ITransformerBlock> Blocks { get; } = blocks;
 
     /// <summary>The norm after the last block, whose output is layer L and the head's input.</summary>
-    public LayerNormParameters FinalNorm { get; } = finalNorm;
+    public INorm FinalNorm { get; } = finalNorm;
 
     public OutputHead Head { get; } = head;
 

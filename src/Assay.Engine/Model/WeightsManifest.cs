@@ -62,7 +62,7 @@ public static class WeightsManifest
             entry = new JsonObject
             {
                 ["name"] = Path.GetFileNameWithoutExtension(entryPath),
-                ["family"] = "GPT-2",
+                ["family"] = config.FamilyName,
                 ["architecture"] = JsonNode.Parse(InputFile.ReadAllBytes(configPath)),
                 ["parameter_count"] = config.ParameterCount,
                 ["parameter_count_source"] = "counted from the architecture, tied head counted once",
@@ -194,7 +194,7 @@ public static class WeightsManifest
     private static JsonArray Inventory(ModelConfig config)
     {
         var tensors = new JsonArray();
-        foreach ((string name, long[] shape) in Gpt2.Gpt2Layout.ExpectedParameters(config))
+        foreach ((string name, long[] shape) in CheckpointLayout.For(config).ExpectedParameters(config))
         {
             tensors.Add(new JsonObject { ["name"] = name, ["shape"] = new JsonArray([.. shape.Select(s => JsonValue.Create(s))]) });
         }
@@ -238,5 +238,5 @@ public static class WeightsManifest
     }
 
     private static string Describe(ModelConfig c) => string.Create(CultureInfo.InvariantCulture,
-        $"{c.Layers} layers, width {c.Width}, {c.Heads} heads, context {c.ContextLength}, vocabulary {c.VocabularySize}, MLP {c.InnerWidth}, {c.Activation}, {(c.TiedHead ? "tied" : "untied")} head");
+        $"{c.ModelType}, {c.Layers} layers, width {c.Width}, {c.Heads} heads ({c.KeyValueHeads} key/value) of {c.HeadWidth}, context {c.ContextLength}, vocabulary {c.VocabularySize}, MLP {c.InnerWidth}, {c.Activation}, {(c.TiedHead ? "tied" : "untied")} head");
 }

@@ -249,6 +249,7 @@ public static class ExtractionRun
             ["model"] = new JsonObject
             {
                 ["folder"] = Path.GetFileName(Path.TrimEndingDirectorySeparator(Path.GetFullPath(model.Folder))),
+                ["family"] = model.Config.ModelType,
                 ["layers"] = model.Config.Layers,
                 ["width"] = model.Config.Width,
                 ["vocabulary"] = model.Config.VocabularySize,

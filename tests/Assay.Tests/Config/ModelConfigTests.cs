@@ -53,7 +53,7 @@ public sealed class ModelConfigTests : IDisposable
     [InlineData("\"n_head\": 5", "n_head", "does not divide n_embd = 64")]
     [InlineData("\"layer_norm_epsilon\": 0", "layer_norm_epsilon", "expected a number in (0, 1)")]
     [InlineData("\"activation_function\": \"swish\"", "activation_function", "'swish' is not supported")]
-    [InlineData("\"model_type\": \"llama\"", "model_type", "'llama' is not supported")]
+    [InlineData("\"model_type\": \"falcon\"", "model_type", "'falcon' is not supported")]
     [InlineData("\"scale_attn_by_inverse_layer_idx\": true", "scale_attn_by_inverse_layer_idx", "not supported")]
     [InlineData("\"tie_word_embeddings\": \"yes\"", "tie_word_embeddings", "expected true or false")]
     [InlineData("\"vocab_size\": -3", "vocab_size", "expected an integer in [1")]

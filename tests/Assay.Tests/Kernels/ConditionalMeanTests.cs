@@ -40,7 +40,7 @@ public sealed class ConditionalMeanTests
             {
                 // In bfloat16 the reference sums over E rounded to bfloat16 (GemmTests.RoundToBFloat16).
                 float[] stored = precision == WeightPrecision.BFloat16 ? [.. e.Select(GemmTests.RoundToBFloat16)] : e;
-                Check(variant, precision, rows, d, v, p, stored, PackedMatrix.FromTransposed(e, d, v, precision));
+                Check(variant, precision, rows, d, v, p, stored, PackedMatrix.FromTransposed(e, d, v, precision: precision));
             }
         }
     }
@@ -74,7 +74,7 @@ public sealed class ConditionalMeanTests
         float[] e = GemmTests.Random(ref rng, v * d), p = GemmTests.Random(ref rng, rows * v);
         foreach (WeightPrecision precision in new[] { WeightPrecision.Binary32, WeightPrecision.BFloat16 })
         {
-            PackedMatrix head = PackedMatrix.FromTransposed(e, d, v, precision);
+            PackedMatrix head = PackedMatrix.FromTransposed(e, d, v, precision: precision);
             float[] scalar = new float[rows * d];
             K.ConditionalMean(p, rows, head, scalar, KernelVariant.Scalar);
             foreach (KernelVariant variant in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))

@@ -72,23 +72,40 @@ public sealed class ElementwiseKernelTests
     }
 
     [Theory]
-    [InlineData(1, 8, 1, 0)]
-    [InlineData(17, 40, 5, 3)]
-    [InlineData(64, 768, 12, 11)]
-    [InlineData(129, 136, 8, 7)]
-    [InlineData(33, 51, 3, 1)]
-    [InlineData(257, 96, 2, 1)]
-    public void Attention_matches_reference_with_the_same_bits_on_every_variant(int length, int width, int heads, int head)
+    [InlineData(1, 8, 1, 1, 0)]
+    [InlineData(17, 40, 5, 5, 0)]
+    [InlineData(64, 768, 12, 12, 0)]
+    [InlineData(129, 136, 8, 8, 0)]
+    [InlineData(33, 51, 3, 3, 0)]
+    [InlineData(257, 96, 2, 2, 0)]
+    // Grouped-query: 6 query heads on 2 key/value heads, 15 on 3 (groups of 5, not a power of two), with and without a window.
+    [InlineData(40, 60, 6, 2, 0)]
+    [InlineData(71, 120, 15, 3, 0)]
+    [InlineData(71, 120, 15, 3, 9)]
+    [InlineData(20, 24, 4, 1, 1)]
+    public void Attention_matches_reference_with_the_same_bits_on_every_variant(int length, int width, int heads, int kvHeads, int window)
     {
         int hd = width / heads;
+        var shape = new AttentionShape(heads, kvHeads, hd, window);
         var rng = new DeterministicRandom((ulong)(length * width));
-        float[] qkv = GemmTests.Random(ref rng, length * 3 * width);
-        double[] expected = ReferenceKernels.Attention(qkv, length, width, head, hd);
+        float[] qkv = GemmTests.Random(ref rng, length * shape.RowWidth);
+        double[] expected = new double[length * width];
+        for (int head = 0; head < heads; head++)
+        {
+            double[] one = ReferenceKernels.Attention(qkv, length, heads, kvHeads, hd, window, head);
+            for (int i = 0; i < one.Length; i++)
+            {
+                expected[i] += one[i];
+            }
+        }
         float[]? first = null;
         foreach (KernelVariant v in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
         {
             float[] o = new float[length * width];
-            K.CausalAttentionHead(qkv, o, length, width, head, hd, new float[length], new float[hd * length], v);
+            for (int kv = 0; kv < kvHeads; kv++)
+            {
+                K.CausalAttentionGroup(qkv, o, length, shape, kv, new float[length], new float[hd * length], v);
+            }
             Tolerance.AssertClose(o, expected, 1e-5, 1e-5, $"attention, {v}");
             // Each score and output element is the same in-order FMA chain on every path (tolerance 0).
             first ??= o;

@@ -156,7 +156,7 @@ public sealed class GemmTests
     {
         var rng = new DeterministicRandom(24);
         float[] bt = Random(ref rng, 130 * 9);
-        PackedMatrix p = PackedMatrix.FromTransposed(bt, 9, 130, WeightPrecision.BFloat16);
+        PackedMatrix p = PackedMatrix.FromTransposed(bt, 9, 130, precision: WeightPrecision.BFloat16);
         float[] col = new float[9];
         for (int nIndex = 0; nIndex < 130; nIndex++)
         {
@@ -203,9 +203,31 @@ public sealed class GemmTests
         }
     }
 
-    [Fact]
-    public void Int8_is_refused_for_transposed_packs() =>
-        Assert.Throws<ArgumentException>(() => PackedMatrix.FromTransposed(new float[6], 2, 3, WeightPrecision.Integer8));
+    /// <summary>An [out, in] matrix packed in int8 holds the same bytes, scales, sums and bias as its transpose packed row-major.</summary>
+    [Theory]
+    [InlineData(9, 70)]
+    [InlineData(13, 130)]
+    [InlineData(4, 1)]
+    public void Int8_transposed_pack_equals_the_row_major_pack_of_the_transpose(int k, int n)
+    {
+        var rng = new DeterministicRandom((ulong)(k * n));
+        float[] bt = Random(ref rng, n * k);
+        float[] bias = Random(ref rng, n);
+        float[] b = new float[k * n];
+        for (int r = 0; r < k; r++)
+        {
+            for (int c = 0; c < n; c++)
+            {
+                b[(r * n) + c] = bt[(c * k) + r];
+            }
+        }
+        PackedMatrix t = PackedMatrix.FromTransposed(bt, k, n, bias, WeightPrecision.Integer8);
+        PackedMatrix r0 = PackedMatrix.FromRowMajor(b, k, n, bias, WeightPrecision.Integer8);
+        Assert.Equal(r0.Quads, t.Quads);
+        Assert.Equal(r0.Scales, t.Scales);
+        Assert.Equal(r0.ColumnSums, t.ColumnSums);
+        Assert.Equal(r0.Bias, t.Bias);
+    }
 
     /// <summary>The sizes of <see cref="Matches_reference_on_small_and_ragged_sizes"/>: M, N in 0/1 … 257, K in 1 … 255.</summary>
     private static IEnumerable<(int M, int N, int K)> Grid() =>

@@ -57,35 +57,43 @@ internal static class ReferenceKernels
 
     public static double GeluTanh(double x) => 0.5 * x * (1 + Math.Tanh(Math.Sqrt(2 / Math.PI) * (x + (0.044715 * x * x * x))));
 
-    /// <summary>Causal attention of one head, straight from softmax(q·kᵀ/√hd + mask)·v.</summary>
-    public static double[] Attention(float[] qkv, int length, int width, int head, int hd)
+    /// <summary>Causal attention of one query head (reading key/value head head / (heads / kvHeads), within the last <paramref name="window"/> positions when positive), straight from softmax(q·kᵀ/√hd + mask)·v.</summary>
+    public static double[] Attention(float[] qkv, int length, int heads, int kvHeads, int hd, int window, int head)
     {
+        int width = heads * hd;
+        int stride = (heads + (2 * kvHeads)) * hd;
+        int kv = head / (heads / kvHeads);
+        int k0 = (heads + kv) * hd, v0 = (heads + kvHeads + kv) * hd;
         double[] o = new double[length * width];
-        int stride = 3 * width;
         for (int t = 0; t < length; t++)
         {
+            int first = window > 0 ? Math.Max(0, t - window + 1) : 0;
             double[] s = new double[t + 1];
-            for (int j = 0; j <= t; j++)
+            for (int j = first; j <= t; j++)
             {
                 double dot = 0;
                 for (int i = 0; i < hd; i++)
                 {
-                    dot += (double)qkv[(t * stride) + (head * hd) + i] * qkv[(j * stride) + width + (head * hd) + i];
+                    dot += (double)qkv[(t * stride) + (head * hd) + i] * qkv[(j * stride) + k0 + i];
                 }
                 s[j] = dot / Math.Sqrt(hd);
             }
-            double max = s.Max();
+            double max = double.NegativeInfinity;
+            for (int j = first; j <= t; j++)
+            {
+                max = Math.Max(max, s[j]);
+            }
             double sum = 0;
-            for (int j = 0; j <= t; j++)
+            for (int j = first; j <= t; j++)
             {
                 s[j] = Math.Exp(s[j] - max);
                 sum += s[j];
             }
-            for (int j = 0; j <= t; j++)
+            for (int j = first; j <= t; j++)
             {
                 for (int i = 0; i < hd; i++)
                 {
-                    o[(t * width) + (head * hd) + i] += s[j] / sum * qkv[(j * stride) + (2 * width) + (head * hd) + i];
+                    o[(t * width) + (head * hd) + i] += s[j] / sum * qkv[(j * stride) + v0 + i];
                 }
             }
         }

@@ -9,14 +9,46 @@ using Assay.Weights;
 namespace Assay.Tests.Model;
 
 /// <summary>
-/// The forward pass against an independent numpy implementation (Debian python3-numpy, float64, run live:
-/// Reference/gpt2_numpy.py), which reads the same checkpoint files with its own safetensors parser. Every layer's
-/// hidden states and the logits must agree within atol 1e-4 + rtol 1e-4 (float32 engine vs float64 reference).
+/// The forward pass against independent numpy implementations (Debian python3-numpy, float64, run live:
+/// Reference/gpt2_numpy.py for GPT-2, Reference/decoder_numpy.py for the Llama-style and NeoX families, both written
+/// from the published architecture descriptions), which read the same checkpoint files with their own safetensors
+/// parser. Every layer's hidden states and the logits must agree within atol 1e-4 + rtol 1e-4 (float32 engine vs
+/// float64 reference).
 /// </summary>
 public sealed class ForwardParityTests(ITestOutputHelper output)
 {
     private const double Atol = 1e-4;
     private const double Rtol = 1e-4;
+
+    /// <summary>Checkpoints of the rotary families on odd shapes (shared with the feature and golden tests).</summary>
+    public static readonly Dictionary<string, CheckpointSpec> Families = new()
+    {
+        ["llama-gqa-width60"] = new CheckpointSpec { Family = "llama", Width = 60, Heads = 6, KeyValueHeads = 2, Layers = 2, Context = 24, Inner = 100, Tied = false },
+        ["llama3-scaled-bf16"] = new CheckpointSpec
+        {
+            Family = "llama", Width = 48, Heads = 3, KeyValueHeads = 1, Layers = 2, Context = 64, DType = "BF16", RopeTheta = 500000,
+            RopeScaling = """{"rope_type": "llama3", "factor": 8.0, "low_freq_factor": 1.0, "high_freq_factor": 4.0, "original_max_position_embeddings": 8}""",
+        },
+        ["llama-headdim-linear-f16"] = new CheckpointSpec
+        {
+            Family = "llama", Width = 40, Heads = 5, HeadDim = 12, Layers = 2, Context = 20, DType = "F16", Shards = 2, Tied = false,
+            RopeScaling = """{"type": "linear", "factor": 2.0}""",
+        },
+        ["mistral-window5"] = new CheckpointSpec { Family = "mistral", Width = 32, Heads = 4, KeyValueHeads = 2, Layers = 2, Context = 30, SlidingWindow = 5, Tied = false },
+        ["qwen2-bias-window"] = new CheckpointSpec
+        {
+            Family = "qwen2", Width = 56, Heads = 7, KeyValueHeads = 1, Layers = 3, Context = 25, SlidingWindow = 6, MaxWindowLayers = 1, Inner = 88,
+        },
+        ["neox-parallel-pct06"] = new CheckpointSpec
+        {
+            Family = "gpt_neox", Width = 40, Heads = 4, Layers = 2, Context = 18, RotaryPct = 0.6, Activation = "gelu", Inner = 72, Tied = false,
+        },
+        ["neox-sequential-bf16"] = new CheckpointSpec
+        {
+            Family = "gpt_neox", Width = 48, Heads = 3, Layers = 2, Context = 21, RotaryPct = 0.25, ParallelResidual = false, Activation = "gelu",
+            DType = "BF16", Tied = false,
+        },
+    };
 
     public static readonly Dictionary<string, (CheckpointSpec Spec, int[] Lengths)> Cases = new()
     {
@@ -32,7 +64,24 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
         ["one-head-width17-relu"] = (new CheckpointSpec { Width = 17, Heads = 1, Layers = 1, Context = 9, Activation = "relu" }, [9, 2, 1]),
         // Width past one 64-column panel and more rows than one micro-tile batch.
         ["width136-long"] = (new CheckpointSpec { Width = 136, Heads = 4, Layers = 2, Context = 80, Vocabulary = 333 }, [80, 61, 1]),
+
+        // Llama: six heads of 10 on two key/value heads (groups of 3), untied, an MLP width that is not a multiple of 16.
+        ["llama-gqa-width60"] = (Families["llama-gqa-width60"], [24, 1, 9]),
+        // Llama 3: llama3 rope scaling whose original context (8) the sequences pass, so all three frequency bands
+        // (kept, divided, smoothed) matter; one key/value head for three query heads; tied; BF16.
+        ["llama3-scaled-bf16"] = (Families["llama3-scaled-bf16"], [40, 5]),
+        // Llama with head_dim 12 ≠ d / heads (5 heads on width 40), linear rope scaling ×2, F16, two shards.
+        ["llama-headdim-linear-f16"] = (Families["llama-headdim-linear-f16"], [20, 7]),
+        // Mistral: a sliding window of 5 over sequences up to 30, two key/value heads for four query heads.
+        ["mistral-window5"] = (Families["mistral-window5"], [30, 3, 12]),
+        // Qwen2: q/k/v biases, 7 query heads on one key/value head, the window (6) on layers 1 and 2 only, tied.
+        ["qwen2-bias-window"] = (Families["qwen2-bias-window"], [25, 2]),
+        // NeoX, parallel residual: heads of 10 with rotary_pct 0.6 (6 dims, an odd 3 rotary pairs), exact GELU, untied.
+        ["neox-parallel-pct06"] = (Families["neox-parallel-pct06"], [18, 1, 6]),
+        // NeoX, sequential residual, rotary_pct 0.25 of heads of 16, BF16, with the causal-mask and inv_freq buffers.
+        ["neox-sequential-bf16"] = (Families["neox-sequential-bf16"], [21, 4]),
     };
+
 
     public static TheoryData<string, KernelVariant> CaseNames
     {
@@ -70,6 +119,9 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
     [InlineData("odd-heads-width40")]
     [InlineData("width136-long")]
     [InlineData("untied-f16-width36")]
+    [InlineData("llama-gqa-width60")]
+    [InlineData("qwen2-bias-window")]
+    [InlineData("neox-parallel-pct06")]
     public void Every_kernel_path_gives_the_same_bits_through_the_model(string name)
     {
         (CheckpointSpec spec, int[] lengths) = Cases[name];
@@ -111,7 +163,7 @@ public sealed class ForwardParityTests(ITestOutputHelper output)
         string seqPath = temp.File("sequences.json");
         File.WriteAllText(seqPath, JsonSerializer.Serialize(sequences));
         string outDir = temp.File("out");
-        PythonReference.Run("gpt2_numpy.py", [folder, seqPath, outDir, .. allLogits ? ["--all-logits"] : Array.Empty<string>()]);
+        PythonReference.Run(spec.Family == "gpt2" ? "gpt2_numpy.py" : "decoder_numpy.py", [folder, seqPath, outDir, .. allLogits ? ["--all-logits"] : Array.Empty<string>()]);
 
         foreach (WeightPrecision precision in precisions)
         {

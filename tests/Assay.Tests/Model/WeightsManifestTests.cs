@@ -24,7 +24,7 @@ public sealed class WeightsManifestTests
             var listed = root.GetProperty("tensors").EnumerateArray()
                 .Select(t => (t.GetProperty("name").GetString()!, t.GetProperty("shape").EnumerateArray().Select(x => x.GetInt64()).ToArray()))
                 .ToList();
-            var implied = Assay.Model.Gpt2.Gpt2Layout.ExpectedParameters(c).ToList();
+            var implied = Assay.Model.CheckpointLayout.For(c).ExpectedParameters(c).ToList();
             Assert.Equal(implied.Select(p => p.Name), listed.Select(p => p.Item1));
             Assert.Equal(implied.Select(p => string.Join(",", p.Shape)), listed.Select(p => string.Join(",", p.Item2)));
         }

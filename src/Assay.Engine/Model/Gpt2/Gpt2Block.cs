@@ -30,7 +30,7 @@ internal sealed class Gpt2Block(LayerNormParameters norm1, PackedMatrix attentio
         {
             norm1.Apply(x, scratch, t, batch);
             Gemm(scratch, t, d, attention, qkv, 3 * d, accumulate: false, variant, parallel);
-            CausalSelfAttention.Run(qkv, attn, heads, d / heads, batch);
+            CausalSelfAttention.Run(qkv, attn, new AttentionShape(heads, heads, d / heads, Window: 0), batch);
             Gemm(attn, t, d, attentionOut, x, d, accumulate: true, variant, parallel);
 
             norm2.Apply(x, scratch, t, batch);
