@@ -5,9 +5,11 @@ using TorchSharp;
 using static TorchSharp.torch;
 
 // assay-torch-reference <golden-dir>
-// Computes every case's hidden states (all layers) and last-position logits with libtorch ops in float64 —
-// layer_norm, gelu (tanh), scaled_dot_product_attention (causal), matmul — on the synthetic checkpoints of
-// Assay.Fixtures, and writes them as float32 .npy files with a manifest the engine's golden tests read.
+// Computes every case's hidden states (all layers) and last-position logits with libtorch ops in float64 — for
+// GPT-2 layer_norm, gelu (tanh), scaled_dot_product_attention (causal), matmul; for the rotary families (FamilyForward.cs)
+// the same with RMSNorm from mean/rsqrt, rotary positions from cos/sin, silu, exact gelu, grouped key/value heads by
+// repeat_interleave and sliding windows as a boolean mask — on the synthetic checkpoints of Assay.Fixtures, and writes
+// them as float32 .npy files with a manifest the engine's golden tests read.
 if (args.Length != 1)
 {
     Console.Error.WriteLine("usage: assay-torch-reference <golden-dir>");
@@ -23,6 +25,26 @@ var cases = new List<GoldenCase>
     new("untied-f16-width36", new CheckpointSpec { Width = 36, Heads = 3, Layers = 3, Context = 12, Tied = false, DType = "F16" }, [12, 5]),
     new("bf16-width64", new CheckpointSpec { Width = 64, Heads = 4, Layers = 2, Context = 24, DType = "BF16", Prefix = true }, [24, 2]),
     new("gpt2-small", CheckpointSpec.Gpt2Small, [8, 1]),
+    new("llama-gqa-width60", new CheckpointSpec { Family = "llama", Width = 60, Heads = 6, KeyValueHeads = 2, Layers = 2, Context = 24, Inner = 100, Tied = false }, [24, 1, 9]),
+    new("llama3-scaled-bf16", new CheckpointSpec
+    {
+        Family = "llama", Width = 48, Heads = 3, KeyValueHeads = 1, Layers = 2, Context = 64, DType = "BF16", RopeTheta = 500000,
+        RopeScaling = """{"rope_type": "llama3", "factor": 8.0, "low_freq_factor": 1.0, "high_freq_factor": 4.0, "original_max_position_embeddings": 8}""",
+    }, [40, 5]),
+    new("mistral-window5", new CheckpointSpec { Family = "mistral", Width = 32, Heads = 4, KeyValueHeads = 2, Layers = 2, Context = 30, SlidingWindow = 5, Tied = false }, [30, 3]),
+    new("qwen2-bias-window", new CheckpointSpec
+    {
+        Family = "qwen2", Width = 56, Heads = 7, KeyValueHeads = 1, Layers = 3, Context = 25, SlidingWindow = 6, MaxWindowLayers = 1, Inner = 88,
+    }, [25, 2]),
+    new("neox-parallel-pct06", new CheckpointSpec
+    {
+        Family = "gpt_neox", Width = 40, Heads = 4, Layers = 2, Context = 18, RotaryPct = 0.6, Activation = "gelu", Inner = 72, Tied = false,
+    }, [18, 6]),
+    new("neox-sequential-bf16", new CheckpointSpec
+    {
+        Family = "gpt_neox", Width = 48, Heads = 3, Layers = 2, Context = 21, RotaryPct = 0.25, ParallelResidual = false, Activation = "gelu",
+        DType = "BF16", Tied = false,
+    }, [21, 4]),
 };
 
 foreach (GoldenCase c in cases)
@@ -33,7 +55,19 @@ foreach (GoldenCase c in cases)
     c.Sequences = sequences;
     Dictionary<string, Tensor> p = SyntheticCheckpoint.Parameters(c.Spec)
         .ToDictionary(sp => sp.Name, sp => tensor(sp.Values.Select(v => (double)v).ToArray(), sp.Shape, ScalarType.Float64));
-    Forward(c.Spec, p, sequences, dir);
+    if (c.Spec.Family == "gpt2")
+    {
+        Forward(c.Spec, p, sequences, dir);
+    }
+    else
+    {
+        (List<Tensor>[] hidden, List<Tensor> last) = FamilyForward.Run(c.Spec, p, sequences);
+        for (int k = 0; k < hidden.Length; k++)
+        {
+            Save(Path.Combine(dir, $"hidden_{k}.npy"), cat(hidden[k], 0));
+        }
+        Save(Path.Combine(dir, "logits_last.npy"), stack(last));
+    }
     Console.WriteLine($"{c.Name}: {sequences.Length} sequences written to {dir}");
 }
 
