@@ -14,8 +14,9 @@ Written from the published architecture descriptions (common practice):
     mlp(ln2(x)); sequential: x = x + attn(ln1(x)); x = x + mlp(ln2(x)). Final LayerNorm; logits = y embed_out^T.
 
 usage: decoder_numpy.py MODEL_DIR SEQUENCES_JSON OUT_DIR [--all-logits]
-writes hidden_{k}.npy ([T, d], k = 0 .. L, layer 0 the token embeddings), logits_last.npy ([B, V]) and with
---all-logits logits_all.npy ([T, V]), all float64.
+writes hidden_{k}.npy ([T, d], k = 0 .. L, layer 0 the token embeddings), logits_last.npy ([B, V]),
+p_last.npy (softmax of the last logits, [B, V]), cmean_last.npy (p_last @ head, the conditional mean of the output
+embeddings, [B, d]) and with --all-logits logits_all.npy ([T, V]), all float64.
 """
 import json
 import math
@@ -169,6 +170,10 @@ def main():
     w = read_checkpoint(folder)
     family = cfg["model_type"]
     hidden, last, every = None, [], []
+    if family == "gpt_neox":
+        head = w["gpt_neox.embed_in.weight"] if cfg.get("tie_word_embeddings", False) else w["embed_out.weight"]
+    else:
+        head = w["model.embed_tokens.weight"] if cfg.get("tie_word_embeddings", False) else w["lm_head.weight"]
     for seq in sequences:
         states, logits = neox_forward(cfg, w, seq) if family == "gpt_neox" else llama_forward(cfg, w, seq, family)
         hidden = [[s] for s in states] if hidden is None else [h + [s] for h, s in zip(hidden, states)]
@@ -177,7 +182,12 @@ def main():
     os.makedirs(out, exist_ok=True)
     for k, hs in enumerate(hidden):
         np.save(os.path.join(out, f"hidden_{k}.npy"), np.concatenate(hs))
-    np.save(os.path.join(out, "logits_last.npy"), np.stack(last))
+    last = np.stack(last)
+    np.save(os.path.join(out, "logits_last.npy"), last)
+    p = np.exp(last - last.max(axis=-1, keepdims=True))
+    p /= p.sum(axis=-1, keepdims=True)
+    np.save(os.path.join(out, "p_last.npy"), p)
+    np.save(os.path.join(out, "cmean_last.npy"), p @ head)
     if all_logits:
         np.save(os.path.join(out, "logits_all.npy"), np.concatenate(every))
 
