@@ -123,9 +123,8 @@ public sealed partial record ModelConfig
         get
         {
             CultureInfo inv = CultureInfo.InvariantCulture;
-            string norm = Norm == NormKind.LayerNorm
-                ? string.Create(inv, $"LayerNorm (ε {NormEpsilon:G6})")
-                : string.Create(inv, $"RMSNorm in float32 (ε {NormEpsilon:G6})");
+            string eps = NormEpsilon.ToString("0.#####e-0", inv);
+            string norm = Norm == NormKind.LayerNorm ? $"LayerNorm (ε {eps})" : $"RMSNorm in float32 (ε {eps})";
             string positions = Rotary is { } r ? r.ToString() : string.Create(inv, $"learned positions ({ContextLength})");
             string attention = string.Create(inv, $"attention {Heads} heads of {HeadWidth}") + (KeyValueHeads == Heads
                 ? ""
