@@ -87,6 +87,24 @@ public sealed class WeightsManifestPinTests
         Assert.StartsWith("modified MIT", doc.RootElement.GetProperty("licence").GetString(), StringComparison.Ordinal);
     }
 
+    [Fact]
+    public void A_rotary_family_folder_is_pinned_with_its_family_and_inventory()
+    {
+        using var temp = new TempFolder();
+        string entry = temp.File("qwen2-test.json");
+        string folder = Checkpoints.Folder(ForwardParityTests.Families["qwen2-bias-window"]);
+        WeightsManifest.Pin(folder, entry, licence: "test weights", provenance: "Assay.Fixtures seed 1");
+        Assert.Empty(WeightsManifest.Verify(folder, entry));
+        using (JsonDocument doc = JsonDocument.Parse(File.ReadAllBytes(entry)))
+        {
+            Assert.Equal("Qwen2-style", doc.RootElement.GetProperty("family").GetString());
+            Assert.Contains(doc.RootElement.GetProperty("tensors").EnumerateArray(), t => t.GetProperty("name").GetString() == "model.layers.2.self_attn.k_proj.bias");
+        }
+        // A folder of another family's shape is refused against it.
+        string llama = Checkpoints.Folder(ForwardParityTests.Families["llama-gqa-width60"]);
+        Assert.Contains("is not the folder's", Assert.Throws<ManifestException>(() => WeightsManifest.Pin(llama, entry, repin: true)).Message, StringComparison.Ordinal);
+    }
+
     internal static string RepositoryManifest()
     {
         string? dir = AppContext.BaseDirectory;

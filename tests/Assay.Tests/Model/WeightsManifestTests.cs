@@ -7,10 +7,22 @@ namespace Assay.Tests.Model;
 /// <summary>Each weights-manifest entry's inventory is what its architecture implies.</summary>
 public sealed class WeightsManifestTests
 {
-    [Fact]
-    public void Gpt2_124m_entry_matches_its_architecture_and_the_published_count()
+    public static TheoryData<string, long> Entries()
     {
-        string path = Path.Combine(WeightsManifestPinTests.RepositoryManifest(), "gpt2-124m.json");
+        // 124,439,808: the published GPT-2 small parameter count; the others as quoted for their checkpoints (from memory).
+        var data = new TheoryData<string, long> { { "gpt2-124m.json", 124_439_808L } };
+        foreach ((string entry, _, long parameters) in Assay.Tests.Config.PublishedConfigs.All)
+        {
+            data.Add(entry, parameters);
+        }
+        return data;
+    }
+
+    [Theory]
+    [MemberData(nameof(Entries))]
+    public void Published_entries_match_their_architecture_and_the_published_count(string entry, long parameters)
+    {
+        string path = Path.Combine(WeightsManifestPinTests.RepositoryManifest(), entry);
         using JsonDocument doc = JsonDocument.Parse(File.ReadAllText(path));
         JsonElement root = doc.RootElement;
         string config = Path.Combine(Path.GetTempPath(), "assay-manifest-config-" + Guid.NewGuid().ToString("N") + ".json");
@@ -18,15 +30,17 @@ public sealed class WeightsManifestTests
         try
         {
             ModelConfig c = ModelConfig.Load(config);
-            // 124,439,808: the published GPT-2 small parameter count.
-            Assert.Equal(124_439_808L, root.GetProperty("parameter_count").GetInt64());
-            Assert.Equal(124_439_808L, c.ParameterCount);
+            Assert.Equal(parameters, root.GetProperty("parameter_count").GetInt64());
+            Assert.Equal(parameters, c.ParameterCount);
+            Assert.Equal(c.FamilyName, root.GetProperty("family").GetString());
             var listed = root.GetProperty("tensors").EnumerateArray()
                 .Select(t => (t.GetProperty("name").GetString()!, t.GetProperty("shape").EnumerateArray().Select(x => x.GetInt64()).ToArray()))
                 .ToList();
-            var implied = Assay.Model.CheckpointLayout.For(c).ExpectedParameters(c).ToList();
+            var implied = CheckpointLayout.For(c).ExpectedParameters(c).ToList();
             Assert.Equal(implied.Select(p => p.Name), listed.Select(p => p.Item1));
             Assert.Equal(implied.Select(p => string.Join(",", p.Shape)), listed.Select(p => string.Join(",", p.Item2)));
+            // The listed shapes hold exactly the parameters counted (a tied head listed once).
+            Assert.Equal(parameters, listed.Sum(p => p.Item2.Aggregate(1L, (a, b) => a * b)));
         }
         finally
         {
