@@ -9,7 +9,7 @@ namespace Assay.TorchBenchmark;
 /// The trainer's libtorch GPT-2 graph (<see cref="Gpt2Ops"/>) on a batch of equal-length sequences, its weights held
 /// in float32 or bfloat16, with the output head at the last position only.
 /// </summary>
-internal sealed class TorchGpt2 : IDisposable
+internal sealed class TorchGpt2 : ITorchModel
 {
     private readonly CheckpointSpec _spec;
     private readonly Dictionary<string, Tensor> _p;

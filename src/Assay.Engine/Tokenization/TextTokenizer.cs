@@ -89,6 +89,59 @@ public sealed partial class TextTokenizer
         return Build(vocabulary, merges, [vocabPath, mergesPath], vocabPath);
     }
 
+    /// <summary>
+    /// A definition's parts this reader does not implement, refused with the JSON path rather than ignored (ignoring
+    /// them would shift ids silently): a normalizer; a pre-tokenizer other than plain byte-level (GPT-2's regex, no
+    /// prefix space); byte fallback, ignore_merges, subword prefixes or suffixes; a post-processor that adds tokens.
+    /// </summary>
+    private static void RefuseUnimplemented(string path, JsonElement root, JsonElement model)
+    {
+        const string Reads = "this engine reads byte-level BPE definitions (GPT-2's pre-tokenization, no normalizer, nothing added around the text)";
+        if (root.TryGetProperty("normalizer", out JsonElement normalizer) && normalizer.ValueKind != JsonValueKind.Null)
+        {
+            throw new TokenizerFileException(path, $"normalizer {Kind(normalizer)} is not implemented; {Reads}");
+        }
+        if (root.TryGetProperty("pre_tokenizer", out JsonElement pre) && pre.ValueKind != JsonValueKind.Null)
+        {
+            if (TypeOf(pre) != "ByteLevel")
+            {
+                throw new TokenizerFileException(path, $"pre_tokenizer {Kind(pre)} is not implemented; {Reads}");
+            }
+            foreach ((string field, bool supported) in new[] { ("add_prefix_space", false), ("use_regex", true) })
+            {
+                if (pre.TryGetProperty(field, out JsonElement flag) && (flag.ValueKind is JsonValueKind.True or JsonValueKind.False)
+                    && flag.GetBoolean() != supported)
+                {
+                    throw new TokenizerFileException(path, $"pre_tokenizer.{field} {(supported ? "false" : "true")} is not implemented; {Reads}");
+                }
+            }
+        }
+        foreach (string field in new[] { "byte_fallback", "ignore_merges" })
+        {
+            if (model.TryGetProperty(field, out JsonElement flag) && flag.ValueKind == JsonValueKind.True)
+            {
+                throw new TokenizerFileException(path, $"model.{field} true is not implemented; {Reads}");
+            }
+        }
+        foreach (string field in new[] { "continuing_subword_prefix", "end_of_word_suffix" })
+        {
+            if (model.TryGetProperty(field, out JsonElement affix) && affix.ValueKind == JsonValueKind.String && affix.GetString()!.Length > 0)
+            {
+                throw new TokenizerFileException(path, $"model.{field} is not implemented; {Reads}");
+            }
+        }
+        if (root.TryGetProperty("post_processor", out JsonElement post) && post.ValueKind != JsonValueKind.Null && TypeOf(post) != "ByteLevel")
+        {
+            throw new TokenizerFileException(path, $"post_processor {Kind(post)} is not implemented (it may add tokens around the text); {Reads}");
+        }
+    }
+
+    private static string? TypeOf(JsonElement part) =>
+        part.ValueKind == JsonValueKind.Object && part.TryGetProperty("type", out JsonElement t) && t.ValueKind == JsonValueKind.String ? t.GetString() : null;
+
+    /// <summary>A part's "type" in quotes for a message, or its JSON text when it has none.</summary>
+    private static string Kind(JsonElement part) => TypeOf(part) is { } type ? "\"" + Echo.Of(type) + "\"" : Echo.Of(part.GetRawText());
+
     /// <summary>Byte-level BPE from the "model" section (type "BPE", "vocab", "merges") of a JSON tokenizer definition.</summary>
     public static TextTokenizer FromDefinition(string path)
     {
@@ -105,6 +158,7 @@ public sealed partial class TextTokenizer
             {
                 throw new TokenizerFileException(path, "model.type must be \"BPE\"; other tokenizer kinds are not supported");
             }
+            RefuseUnimplemented(path, doc.RootElement, model);
             if (!model.TryGetProperty("vocab", out JsonElement vocabEl))
             {
                 throw new TokenizerFileException(path, "model.vocab is missing");

@@ -98,6 +98,35 @@ public sealed class FamilyFeatureTests(ITestOutputHelper output)
         output.WriteLine($"{name}: completion log-likelihood max |diff| {worst:E2}");
     }
 
+    /// <summary>Cross-entropy (each short text after the end-of-text token) against a float64 log-softmax of the numpy reference's logits.</summary>
+    [Theory]
+    [InlineData("llama-gqa-width60")]
+    [InlineData("neox-sequential-bf16")]
+    public void Cross_entropy_matches_numpy(string name)
+    {
+        CheckpointSpec spec = ForwardParityTests.Families[name];
+        string folder = Checkpoints.Folder(spec);
+        LanguageModel m = LanguageModel.Open(folder);
+        Assay.Evaluation.CrossEntropyResult r = Assay.Evaluation.CrossEntropy.Score(m, Texts);
+        int[][] windows = [.. Texts.Select(t => (int[])[m.Tokenizer.EndOfTextId, .. m.Tokenizer.Encode(t)])];
+        using var temp = new TempFolder();
+        File.WriteAllText(temp.File("sequences.json"), JsonSerializer.Serialize(windows));
+        PythonReference.Run("decoder_numpy.py", folder, temp.File("sequences.json"), temp.File("out"), "--all-logits");
+        (double[] logits, _) = Npy.Read(Path.Combine(temp.File("out"), "logits_all.npy"));
+        int v = spec.Vocabulary, row = 0;
+        double nats = 0;
+        foreach (int[] w in windows)
+        {
+            for (int t = 0; t + 1 < w.Length; t++)
+            {
+                nats -= LogSoftmax(logits.AsSpan((row + t) * v, v), w[t + 1]);
+            }
+            row += w.Length;
+        }
+        Assert.Equal(windows.Sum(w => w.Length - 1), r.Tokens);
+        Assert.True(Math.Abs(r.Nats - nats) < 1e-4 * Math.Max(1, nats), $"{name}: {r.Nats} nats, numpy {nats}");
+    }
+
     private static double LogSoftmax(ReadOnlySpan<double> x, int index)
     {
         double max = double.NegativeInfinity;

@@ -74,13 +74,19 @@ public sealed class LoaderPropertyTests : IDisposable
     [Fact]
     public void Config_files_load_or_fail_with_ModelConfigException()
     {
-        string valid = """{"model_type": "gpt2", "n_embd": 48, "n_layer": 2, "n_head": 3, "n_positions": 40, "vocab_size": 300, "layer_norm_epsilon": 1e-5, "activation_function": "gelu_new"}""";
+        // A GPT-2 config and the published configs of every other family (rope_scaling objects, windows, rotary_pct).
+        string[] valid =
+        [
+            """{"model_type": "gpt2", "n_embd": 48, "n_layer": 2, "n_head": 3, "n_positions": 40, "vocab_size": 300, "layer_norm_epsilon": 1e-5, "activation_function": "gelu_new"}""",
+            .. Assay.Tests.Config.PublishedConfigs.All.Select(p => p.Json),
+        ];
         int n = 0;
-        Gen<(int Seed, int Kind)> cases = from seed in Gen.Choose(0, int.MaxValue) from kind in Gen.Choose(0, 5) select (seed, kind);
+        Gen<(int Seed, int Kind, int Which)> cases = from seed in Gen.Choose(0, int.MaxValue) from kind in Gen.Choose(0, 5)
+                                                     from which in Gen.Choose(0, valid.Length - 1) select (seed, kind, which);
         Prop.ForAll(cases.ToArbitrary(), c =>
         {
             string path = _temp.File($"config{n++}.json");
-            File.WriteAllBytes(path, Mutate(Encoding.UTF8.GetBytes(valid), c.Seed, c.Kind));
+            File.WriteAllBytes(path, Mutate(Encoding.UTF8.GetBytes(valid[c.Which]), c.Seed, c.Kind));
             try
             {
                 ModelConfig.Load(path);

@@ -78,6 +78,51 @@ public sealed class TextTokenizerTests : IDisposable
         Assert.Equal(a.Encode(Sample), b.Encode(Sample));
     }
 
+    /// <summary>
+    /// Parts of a JSON definition the reader does not implement are refused with their JSON path, not ignored: the
+    /// pre-tokenization and normalization of Llama-, Llama-3- and Qwen2-style definitions (from memory of those files'
+    /// layouts) would otherwise shift ids silently. NeoX's plain byte-level pre-tokenizer is read.
+    /// </summary>
+    [Theory]
+    [InlineData("\"normalizer\": {\"type\": \"NFC\"}", "normalizer \"NFC\" is not implemented")]
+    [InlineData("\"pre_tokenizer\": {\"type\": \"Metaspace\", \"replacement\": \"\u2581\"}", "pre_tokenizer \"Metaspace\" is not implemented")]
+    [InlineData("\"pre_tokenizer\": {\"type\": \"Sequence\", \"pretokenizers\": [{\"type\": \"Split\"}, {\"type\": \"ByteLevel\"}]}", "pre_tokenizer \"Sequence\" is not implemented")]
+    [InlineData("\"pre_tokenizer\": {\"type\": \"ByteLevel\", \"add_prefix_space\": true}", "pre_tokenizer.add_prefix_space true is not implemented")]
+    [InlineData("\"post_processor\": {\"type\": \"TemplateProcessing\"}", "post_processor \"TemplateProcessing\" is not implemented")]
+    [InlineData("\"model\": {\"byte_fallback\": true}", "model.byte_fallback true is not implemented")]
+    [InlineData("\"model\": {\"ignore_merges\": true}", "model.ignore_merges true is not implemented")]
+    [InlineData("\"pre_tokenizer\": {\"type\": \"ByteLevel\", \"add_prefix_space\": false, \"trim_offsets\": true, \"use_regex\": true}", null)]
+    [InlineData("\"post_processor\": {\"type\": \"ByteLevel\", \"trim_offsets\": true}", null)]
+    public void Json_definition_parts_it_does_not_implement_are_refused(string part, string? message)
+    {
+        SmallVocabulary.WriteDefinition(_temp.Path);
+        var root = System.Text.Json.Nodes.JsonNode.Parse(File.ReadAllText(_temp.File("tokenizer.json")))!.AsObject();
+        var extra = System.Text.Json.Nodes.JsonNode.Parse("{" + part + "}")!.AsObject();
+        foreach ((string key, System.Text.Json.Nodes.JsonNode? value) in extra.ToList())
+        {
+            extra.Remove(key);
+            if (key == "model")
+            {
+                foreach ((string k, System.Text.Json.Nodes.JsonNode? v) in value!.AsObject().ToList())
+                {
+                    value.AsObject().Remove(k);
+                    root["model"]![k] = v;
+                }
+                continue;
+            }
+            root[key] = value;
+        }
+        File.WriteAllText(_temp.File("tokenizer.json"), root.ToJsonString());
+        if (message is null)
+        {
+            Assert.Equal([259], TextTokenizer.OpenFolder(_temp.Path).Encode(" the"));
+            return;
+        }
+        var e = Assert.Throws<TokenizerFileException>(() => TextTokenizer.OpenFolder(_temp.Path));
+        Assert.Equal(_temp.File("tokenizer.json"), e.FilePath);
+        Assert.Contains(message, e.Message, StringComparison.Ordinal);
+    }
+
     [Fact]
     public void Refuses_vocab_without_merges()
     {
