@@ -5,6 +5,7 @@ using Assay.Kernels;
 var root = new RootCommand("assay: run GPT-2-family language models from safetensors checkpoints on the CPU and extract what they compute.");
 root.Subcommands.Add(InspectCommand.Create());
 root.Subcommands.Add(NextCommand.Create());
+root.Subcommands.Add(TokenizeCommand.Create());
 root.Subcommands.Add(ExtractCommand.Create());
 root.Subcommands.Add(MergeCommand.Create());
 root.Subcommands.Add(ManifestCommand.Create());

@@ -35,6 +35,14 @@ public static class Spellings
     /// <summary>float32, float16 (how floating features are stored).</summary>
     public static string Of(FeaturePrecision precision) => precision == FeaturePrecision.Binary16 ? "float16" : "float32";
 
+    /// <summary>auto, always, never (whether sequences start with the beginning-of-sequence token).</summary>
+    public static string Of(Tokenization.BeginningOfSequence policy) => policy switch
+    {
+        Tokenization.BeginningOfSequence.Always => "always",
+        Tokenization.BeginningOfSequence.Never => "never",
+        _ => "auto",
+    };
+
     /// <summary>The value of <typeparamref name="T"/> spelled <paramref name="text"/>.</summary>
     /// <exception cref="ArgumentException">No value is spelled so; the message names <paramref name="option"/> and the spellings.</exception>
     public static T Parse<T>(string option, string text) where T : struct, Enum
@@ -58,6 +66,7 @@ public static class Spellings
         TextTruncation t => Of(t),
         WeightPrecision w => Of(w),
         FeaturePrecision p => Of(p),
+        Tokenization.BeginningOfSequence b => Of(b),
         _ => throw new ArgumentException($"{typeof(T).Name} has no written form", nameof(value)),
     };
 }

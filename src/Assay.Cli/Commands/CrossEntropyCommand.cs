@@ -58,9 +58,11 @@ internal static class CrossEntropyCommand
         }
         var printer = TextProgressPrinter.ForConsole(err ?? TextWriter.Null, total: null,
             () => reader.Fraction);
-        CrossEntropyResult s = CrossEntropy.Score(m, Texts(), stride, threads, printer);
+        CrossEntropyResult s = CrossEntropy.Score(m, Texts(), stride, threads, printer, run.BeginningOfSequence);
         printer.End();
         CultureInfo inv = CultureInfo.InvariantCulture;
+        int[] bos = m.Tokenizer.SequenceStart(run.BeginningOfSequence);
+        string start = bos.Length == 1 ? "beginning-of-sequence" : "end-of-text";
         if (s.Tokens == 0)
         {
             // No predicted token means no cross-entropy (0 / 0), never a "NaN nats/token" result.
@@ -73,11 +75,12 @@ internal static class CrossEntropyCommand
                 ["texts"] = s.Texts, ["rejected"] = rejected, ["tokens"] = s.Tokens, ["tokens_run"] = s.TokensRun, ["bytes"] = s.Bytes, ["nats"] = s.Nats,
                 ["nats_per_token"] = s.NatsPerToken, ["bits_per_byte"] = s.BitsPerByte, ["perplexity"] = s.Perplexity,
                 ["stride"] = stride ?? m.Config.ContextLength,
+                ["start_token"] = m.Tokenizer.TokenText(bos.Length == 1 ? bos[0] : m.Tokenizer.EndOfTextId),
             }.ToJsonString(JsonOutput.Options));
             return 0;
         }
         o.WriteLine(string.Create(inv, $"texts          {s.Texts:N0} scored ({rejected:N0} rejected records skipped)"));
-        o.WriteLine(string.Create(inv, $"tokens         {s.Tokens:N0} predicted ({s.TokensRun:N0} run through the model, with each text's end-of-text context token{(s.TokensRun > s.Tokens + s.Texts ? " and the windows' overlap" : "")}), {s.Bytes:N0} UTF-8 bytes"));
+        o.WriteLine(string.Create(inv, $"tokens         {s.Tokens:N0} predicted ({s.TokensRun:N0} run through the model, with each text's {start} context token{(s.TokensRun > s.Tokens + s.Texts ? " and the windows' overlap" : "")}), {s.Bytes:N0} UTF-8 bytes"));
         o.WriteLine(string.Create(inv, $"cross-entropy  {s.NatsPerToken:F4} nats/token, {s.BitsPerByte:F4} bits/byte, perplexity {s.Perplexity:F2}"));
         return 0;
     }

@@ -50,7 +50,7 @@ internal static class ExtractCommand
                 r.GetValue(shared.Format)!, shared.Fields(r),
                 run.Keep, run.LeadingSpace, r.GetValue(precision)!, run.Weights, run.TokenBudget, r.GetValue(commit),
                 run.Threads, r.GetValue(resume), r.GetValue(overwrite), r.GetValue(strict), r.GetValue(progressSeconds),
-                r.GetValue(shard), r.GetValue(yes));
+                r.GetValue(shard), r.GetValue(yes)) { Bos = run.Bos };
             using var cancel = new CancellationTokenSource();
             ConsoleCancelEventHandler onCancel = (_, e) =>
             {
@@ -74,7 +74,11 @@ internal static class ExtractCommand
         string Model, string Input, string Output, string Prompt, string Features, string? Words, string? Completions,
         string Format, InputFields Fields, string Keep, bool LeadingSpace, string Precision, string Weights, int TokenBudget, int CommitRows,
         int Threads, bool Resume, bool Overwrite, bool Strict, double ProgressSeconds, string? Shard = null, bool Yes = false,
-        long ConfirmAboveBytes = ConfirmAbove);
+        long ConfirmAboveBytes = ConfirmAbove)
+    {
+        /// <summary>The --bos policy.</summary>
+        public string Bos { get; init; } = "auto";
+    }
 
     /// <summary>Feature bytes above which a run asks for --yes.</summary>
     internal const long ConfirmAbove = 2L << 30;
@@ -82,7 +86,7 @@ internal static class ExtractCommand
     internal static int Run(Request q, TextWriter o, TextWriter err, CancellationToken cancellationToken)
     {
         PromptTemplate template = Prompt(q.Prompt);
-        var run = new ModelRun(q.Weights, q.Threads, q.TokenBudget, q.Keep, q.LeadingSpace);
+        var run = new ModelRun(q.Weights, q.Threads, q.TokenBudget, q.Keep, q.LeadingSpace, q.Bos);
         WeightPrecision weights = run.Validate();
         Positive("--commit-rows", q.CommitRows);
         if (!(q.ProgressSeconds > 0 && double.IsFinite(q.ProgressSeconds)))

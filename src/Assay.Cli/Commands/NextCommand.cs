@@ -44,11 +44,13 @@ internal static class NextCommand
         {
             throw new ArgumentException("the text is empty; give at least one character");
         }
-        if (ids.Length > model.Config.ContextLength)
+        int[] start = model.Tokenizer.SequenceStart(run.BeginningOfSequence);
+        if (start.Length + ids.Length > model.Config.ContextLength)
         {
             // The most recent context decides the next word: keep the tail.
-            ids = ids[^model.Config.ContextLength..];
+            ids = ids[^(model.Config.ContextLength - start.Length)..];
         }
+        ids = [.. start, .. ids];
         ForwardResult r = model.Forward([ids], ForwardOptions.LastLogits with { MaxThreads = threads });
         float[] p = new float[r.VocabularySize];
         r.NextTokenProbabilities(0, p);

@@ -7,8 +7,12 @@ namespace Assay.Cli.Commands;
 
 /// <summary>How a command runs the model, as every model command spells it: --weights, --threads, and for
 /// commands that fill a prompt --token-budget, --keep and --no-leading-space.</summary>
-internal sealed record ModelRun(string Weights = "float32", int Threads = 0, int TokenBudget = 4096, string Keep = "head", bool LeadingSpace = true)
+internal sealed record ModelRun(string Weights = "float32", int Threads = 0, int TokenBudget = 4096, string Keep = "head", bool LeadingSpace = true,
+    string Bos = "auto")
 {
+    /// <summary>The --bos policy (after <see cref="Validate"/>).</summary>
+    public Tokenization.BeginningOfSequence BeginningOfSequence => Spellings.Parse<Tokenization.BeginningOfSequence>("--bos", Bos);
+
     /// <summary>Checks every value, naming its option, before anything is opened; gives the weight storage.</summary>
     public WeightPrecision Validate()
     {
@@ -18,6 +22,7 @@ internal sealed record ModelRun(string Weights = "float32", int Threads = 0, int
             throw new ArgumentException(string.Create(System.Globalization.CultureInfo.InvariantCulture, $"--threads {Threads}: expected 0 (all cores) or a positive count"));
         }
         _ = Spellings.Parse<TextTruncation>("--keep", Keep);
+        _ = BeginningOfSequence;
         return ModelOption.ParseWeights(Weights);
     }
 
@@ -28,6 +33,7 @@ internal sealed record ModelRun(string Weights = "float32", int Threads = 0, int
         Features = features,
         Truncation = Spellings.Parse<TextTruncation>("--keep", Keep),
         LeadingSpace = LeadingSpace,
+        BeginningOfSequence = BeginningOfSequence,
         TokenBudget = TokenBudget,
         MaxThreads = Threads,
     };
@@ -49,6 +55,12 @@ internal sealed class SharedOptions
 
     public Option<bool> NoLeadingSpace { get; } = new("--no-leading-space") { Description = "Score words and completions exactly as written, without a space before them." };
 
+    public Option<string> Bos { get; } = new("--bos")
+    {
+        Description = "Start each sequence with the tokenizer's beginning-of-sequence token: auto (as tokenizer_config.json says), always or never.",
+        DefaultValueFactory = _ => "auto",
+    };
+
     public Option<string> Format { get; } = new("--format") { Description = "auto, lines, jsonl, csv or tsv.", DefaultValueFactory = _ => "auto" };
 
     public Option<string> TextField { get; } = new("--text-field") { Description = "JSONL field or CSV column of the text.", DefaultValueFactory = _ => "text" };
@@ -57,11 +69,12 @@ internal sealed class SharedOptions
 
     public Option<string> LabelField { get; } = new("--label-field") { Description = "Field of the label; when given, records without it are rejected (default: label if present)." };
 
-    /// <summary>Adds --weights and --threads, and with <paramref name="prompted"/> --token-budget, --keep and --no-leading-space.</summary>
+    /// <summary>Adds --weights, --threads and --bos, and with <paramref name="prompted"/> --token-budget, --keep and --no-leading-space.</summary>
     public void AddModel(Command command, bool prompted)
     {
         command.Options.Add(Weights);
         command.Options.Add(Threads);
+        command.Options.Add(Bos);
         if (prompted)
         {
             command.Options.Add(TokenBudget);
@@ -85,7 +98,7 @@ internal sealed class SharedOptions
     /// <summary>The command's values; the prompt options keep their defaults on commands that do not take them.</summary>
     public ModelRun Model(ParseResult r)
     {
-        var run = new ModelRun(r.GetValue(Weights)!, r.GetValue(Threads));
+        var run = new ModelRun(r.GetValue(Weights)!, r.GetValue(Threads), Bos: r.GetValue(Bos)!);
         return r.CommandResult.Command.Options.Contains(TokenBudget)
             ? run with { TokenBudget = r.GetValue(TokenBudget), Keep = r.GetValue(Keep)!, LeadingSpace = !r.GetValue(NoLeadingSpace) }
             : run;

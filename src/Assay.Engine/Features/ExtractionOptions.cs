@@ -18,6 +18,9 @@ public sealed record ExtractionOptions
     /// </summary>
     public bool LeadingSpace { get; init; } = true;
 
+    /// <summary>Whether each sequence starts with the tokenizer's beginning-of-sequence token (default: as the checkpoint's tokenizer configuration says).</summary>
+    public Tokenization.BeginningOfSequence BeginningOfSequence { get; init; } = Tokenization.BeginningOfSequence.Auto;
+
     /// <summary>Tokens per forward pass: texts of similar length are batched until their tokens reach this budget.</summary>
     public int TokenBudget { get; init; } = 4096;
 

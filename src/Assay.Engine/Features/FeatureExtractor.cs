@@ -3,6 +3,7 @@ using System.Diagnostics;
 using System.Globalization;
 using System.Runtime.CompilerServices;
 using Assay.Model;
+using Assay.Tokenization;
 
 namespace Assay.Features;
 
@@ -24,6 +25,8 @@ public sealed class FeatureExtractor
     private readonly ExtractionOptions _options;
     private readonly int[][] _before;
     private readonly int[][] _after;
+    private readonly int[] _start;
+    private readonly string _textPrefix;
     private readonly int _promptTokens;
     private readonly FeatureStep[] _steps;
     private readonly int[] _layersToKeep;
@@ -55,9 +58,9 @@ public sealed class FeatureExtractor
 
         var tok = model.Tokenizer;
         _finalLayer = model.Config.Layers;
-        _before = options.Prompt.Before.Select(tok.Encode).ToArray();
-        _after = options.Prompt.After.Select(tok.Encode).ToArray();
-        _promptTokens = _before.Sum(p => p.Length) + _after.Sum(p => p.Length);
+        _start = tok.SequenceStart(options.BeginningOfSequence);
+        (_before, _textPrefix, _after) = EncodePrompt(tok, options.Prompt);
+        _promptTokens = _start.Length + _before.Sum(p => p.Length) + _after.Sum(p => p.Length);
 
         var outputs = new List<FeatureOutput>();
         var steps = new List<FeatureStep>();
@@ -105,8 +108,11 @@ public sealed class FeatureExtractor
     /// <summary>The most text tokens a row keeps: the context less the prompt and the longest word or completion.</summary>
     public int TextTokenLimit { get; }
 
-    /// <summary>Tokens the prompt adds to every text.</summary>
+    /// <summary>Tokens the prompt adds to every text (the beginning-of-sequence token included, when one is added).</summary>
     public int PromptTokens => _promptTokens;
+
+    /// <summary>What every sequence starts with: the beginning-of-sequence token, or nothing.</summary>
+    public IReadOnlyList<int> StartTokens => _start;
 
     /// <summary>Features of each text, in input order, computed group by group as the texts are read.</summary>
     /// <exception cref="ArgumentException">A text is null or empty (the message gives its index).</exception>
@@ -380,9 +386,34 @@ public sealed class FeatureExtractor
         return result;
     }
 
+    /// <summary>
+    /// The prompt's pieces, each tokenized alone. Under a SentencePiece tokenizer only the sequence's first piece gets
+    /// the dummy-prefix space, and the spaces that end a piece before the text move to the start of the piece after it
+    /// (the text, or the next piece), so "Q: {text}" gives ▁Q: ▁a ▁lamp as running text does; byte-level BPE takes the
+    /// pieces exactly as written. Returns the pieces before the text, the spaces the text is prefixed with, and the pieces after it.
+    /// </summary>
+    private static (int[][] Before, string TextPrefix, int[][] After) EncodePrompt(TextTokenizer tok, PromptTemplate prompt)
+    {
+        if (!tok.IsSentencePiece)
+        {
+            return ([.. prompt.Before.Select(tok.Encode)], "", [.. prompt.After.Select(tok.Encode)]);
+        }
+        string carry = "";
+        var before = new int[prompt.Before.Count][];
+        for (int i = 0; i < before.Length; i++)
+        {
+            string piece = carry + prompt.Before[i];
+            string kept = piece.TrimEnd(' ');
+            carry = piece[kept.Length..];
+            before[i] = i == 0 ? tok.Encode(kept) : tok.EncodeContinuation(kept);
+        }
+        return (before, carry, [.. prompt.After.Select(tok.EncodeContinuation)]);
+    }
+
     private PreparedRow Prepare(string text)
     {
-        int[] textIds = _model.Tokenizer.Encode(text);
+        TextTokenizer tok = _model.Tokenizer;
+        int[] textIds = tok.IsSentencePiece && _before.Length > 0 ? tok.EncodeContinuation(_textPrefix + text) : tok.Encode(text);
         int truncated = Math.Max(0, textIds.Length - TextTokenLimit);
         if (truncated > 0)
         {
@@ -390,6 +421,7 @@ public sealed class FeatureExtractor
         }
 
         var tokens = new List<int>(_promptTokens + textIds.Length);
+        tokens.AddRange(_start);
         int piece = 0, mark = -1, markIndex = _options.Prompt.MarkIndex;
         void Append(int[] ids)
         {

@@ -276,6 +276,14 @@ public static class ExtractionRun
             },
             ["prompt"] = x.Prompt.Source,
             ["prompt_tokens"] = extractor.PromptTokens,
+            // What the sequences start with: the policy asked for and the token it added, if any.
+            ["bos"] = new JsonObject
+            {
+                ["policy"] = Spellings.Of(x.BeginningOfSequence),
+                ["added"] = extractor.StartTokens.Count > 0,
+                ["id"] = extractor.StartTokens.Count > 0 ? extractor.StartTokens[0] : null,
+                ["token"] = extractor.StartTokens.Count > 0 ? model.Tokenizer.TokenText(extractor.StartTokens[0]) : null,
+            },
             ["text_token_limit"] = extractor.TextTokenLimit,
             ["truncation"] = Spellings.Of(x.Truncation),
             ["leading_space"] = x.LeadingSpace,

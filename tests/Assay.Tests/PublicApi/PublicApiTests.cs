@@ -34,7 +34,7 @@ public sealed class PublicApiTests
         Assert.Equal("IReadOnlyList<FeatureRequest> Features { get; init; }",
             Member(typeof(Assay.Features.ExtractionOptions).GetProperty("Features")!));
         Assert.Equal("required int Width { get; init; }", Member(typeof(Assay.Config.ModelConfig).GetProperty("Width")!));
-        Assert.Equal("static CrossEntropyResult Score(LanguageModel model, IEnumerable<string> texts, int? stride = null, int maxThreads = 0, IProgress<ExtractionProgress>? progress = null)",
+        Assert.Equal("static CrossEntropyResult Score(LanguageModel model, IEnumerable<string> texts, int? stride = null, int maxThreads = 0, IProgress<ExtractionProgress>? progress = null, BeginningOfSequence bos = BeginningOfSequence.Auto)",
             Member(typeof(Assay.Evaluation.CrossEntropy).GetMethod("Score")!));
         Assert.Equal("sealed record class Assay.Features.HiddenStateFeature : FeatureRequest", Declaration(typeof(Assay.Features.HiddenStateFeature)));
     }

@@ -26,7 +26,7 @@ public static class PythonReference
         Task<string> stderr = p.StandardError.ReadToEndAsync();
         p.WaitForExit();
         Assert.True(p.ExitCode == 0,
-            $"{script} failed ({p.ExitCode}); numpy comes from Debian: apt-get install python3-numpy\n{stderr.Result}");
+            $"{script} failed ({p.ExitCode}); the references come from Debian: apt-get install python3-numpy python3-sklearn python3-scipy python3-sentencepiece\n{stderr.Result}");
         return stdout.Result;
     }
 }

@@ -21,7 +21,8 @@ internal sealed class FeatureBinding(LanguageModel model, ExtractionOptions opti
         for (int i = 0; i < items.Count; i++)
         {
             string item = items[i] ?? throw new ArgumentException($"{what} {i + 1} is null", nameof(items));
-            result[i] = Model.Tokenizer.Encode(Options.LeadingSpace ? " " + item : item);
+            // Words and completions follow the text in the same sequence.
+            result[i] = Model.Tokenizer.EncodeContinuation(Options.LeadingSpace ? " " + item : item);
             if (result[i].Length == 0)
             {
                 throw new ArgumentException($"{what} {i + 1} (\"{item}\") has no tokens", nameof(items));
