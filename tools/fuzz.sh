@@ -9,7 +9,7 @@
 # --jobs J     targets fuzzed at once (default 1; one core each)
 # --save-corpus  afterwards, add the inputs AFL++ found new coverage with (up to 8 KiB each) to the corpus, named by
 #              their SHA-256, so FuzzCorpusTests replays them in every test run
-# TARGET       safetensors index config vocab merges tokenizer-json lines jsonl csv tsv progress run-npy (default: all)
+# TARGET       safetensors index config vocab merges tokenizer-json tokenizer-model lines jsonl csv tsv progress run-npy (default: all)
 #
 # Findings go to out/fuzz/TARGET/default/{crashes,hangs}; replay one with
 #   tools/Assay.Fuzz/bin/instrumented/assay-fuzz TARGET FILE
@@ -28,7 +28,7 @@ while [ $# -gt 0 ]; do
     *) targets+=("$1"); shift ;;
   esac
 done
-[ ${#targets[@]} -gt 0 ] || targets=(safetensors index config vocab merges tokenizer-json lines jsonl csv tsv progress run-npy)
+[ ${#targets[@]} -gt 0 ] || targets=(safetensors index config vocab merges tokenizer-json tokenizer-model lines jsonl csv tsv progress run-npy)
 command -v afl-fuzz >/dev/null || { echo "fuzz.sh: afl-fuzz not found; apt-get install afl++" >&2; exit 2; }
 
 bin="$root/tools/Assay.Fuzz/bin/instrumented"

@@ -25,7 +25,7 @@ public sealed class FuzzTargets
 {
     /// <summary>The target names, one per loader (and per text input format).</summary>
     public static readonly IReadOnlyList<string> Names =
-        ["safetensors", "index", "config", "vocab", "merges", "tokenizer-json", "lines", "jsonl", "csv", "tsv", "progress", "run-npy"];
+        ["safetensors", "index", "config", "vocab", "merges", "tokenizer-json", "tokenizer-model", "lines", "jsonl", "csv", "tsv", "progress", "run-npy"];
 
     /// <summary>The unfinished run's options: 24 texts, hidden states and conditional means, a commit every 4 rows.</summary>
     /// <remarks>Made on use, never in a static initializer: instrumented engine code may only run inside the fuzzer's loop.</remarks>
@@ -48,6 +48,7 @@ public sealed class FuzzTargets
         Directory.CreateDirectory(Path.Combine(folder, "tok-vocab"));
         Directory.CreateDirectory(Path.Combine(folder, "tok-merges"));
         Directory.CreateDirectory(Path.Combine(folder, "tok-json"));
+        Directory.CreateDirectory(Path.Combine(folder, "tok-model"));
         Directory.CreateDirectory(Path.Combine(folder, "sharded"));
         SmallVocabulary.WriteVocabAndMerges(Path.Combine(folder, "tok-vocab"));
         SmallVocabulary.WriteVocabAndMerges(Path.Combine(folder, "tok-merges"));
@@ -83,6 +84,9 @@ public sealed class FuzzTargets
                 break;
             case "tokenizer-json":
                 Expect<TokenizerFileException>(Write(Path.Combine("tok-json", "tokenizer.json"), input), _ => Tokenizer("tok-json"));
+                break;
+            case "tokenizer-model":
+                Expect<TokenizerFileException>(Write(Path.Combine("tok-model", "tokenizer.model"), input), _ => Tokenizer("tok-model"));
                 break;
             case "lines":
             case "jsonl":
@@ -154,7 +158,8 @@ public sealed class FuzzTargets
     private void Tokenizer(string folder)
     {
         TextTokenizer tokenizer = TextTokenizer.OpenFolder(Path.Combine(_folder, folder));
-        int[] ids = tokenizer.Encode(ProbeText);
+        int[] ids = [.. tokenizer.Encode(ProbeText), .. tokenizer.EncodeContinuation(" " + ProbeText)];
+        _ = tokenizer.Tokenize(ProbeText);
         foreach (int id in ids)
         {
             if (id < 0 || id >= tokenizer.VocabularySize)

@@ -147,6 +147,21 @@ internal sealed class SentencePieceModel
         int unknown = Id(path, trainer, 40, 0, pieces.Count, "unk_id");
         int bos = Id(path, trainer, 41, 1, pieces.Count, "bos_id");
         int eos = Id(path, trainer, 42, 2, pieces.Count, "eos_id");
+        // The special pieces must be of their kinds (unknown 2, control 3), as the trainer writes them; the encoder
+        // library reads out of bounds on a model whose unknown piece is missing.
+        if (unknown < 0 || pieces[unknown].Type != 2 || pieces.Count(p => p.Type == 2) != 1)
+        {
+            throw new TokenizerFileException(path, string.Create(CultureInfo.InvariantCulture,
+                $"trainer_spec.unk_id {unknown} is not the model's one unknown piece (type 2); {pieces.Count(p => p.Type == 2)} pieces are of that type"));
+        }
+        foreach ((int id, string name) in new[] { (bos, "bos_id"), (eos, "eos_id") })
+        {
+            if (id >= 0 && pieces[id].Type != 3)
+            {
+                throw new TokenizerFileException(path, string.Create(CultureInfo.InvariantCulture,
+                    $"trainer_spec.{name} {id} is piece '{Echo.Of(pieces[id].Piece)}' of type {pieces[id].Type}, not a control piece (type 3)"));
+            }
+        }
 
         SentencePieceTokenizer tokenizer;
         try

@@ -25,12 +25,14 @@ public sealed partial class TextTokenizer
 
     private readonly Tokenizer _tokenizer;
     private readonly SentencePieceModel? _sentencePiece;
+    private readonly TokenizerDefinition? _definition;
 
     private TextTokenizer(Tokenizer tokenizer, int endOfTextId, int vocabularySize, string source, IReadOnlyList<string> files,
-        SentencePieceModel? sentencePiece = null)
+        SentencePieceModel? sentencePiece = null, TokenizerDefinition? definition = null)
     {
         _tokenizer = tokenizer;
         _sentencePiece = sentencePiece;
+        _definition = definition;
         EndOfTextId = endOfTextId;
         VocabularySize = vocabularySize;
         Source = source;
@@ -43,8 +45,11 @@ public sealed partial class TextTokenizer
     /// <summary>The file name of the tokenizer configuration that says whether a beginning-of-sequence token is added.</summary>
     public const string ConfigFileName = "tokenizer_config.json";
 
-    /// <summary>Whether this is a SentencePiece model (pieces with U+2581 for spaces; a dummy-prefix space at a sequence's start).</summary>
-    public bool IsSentencePiece => _sentencePiece is not null;
+    /// <summary>
+    /// Whether spaces are the prefix of the piece after them and a text starts with a dummy-prefix space: a SentencePiece
+    /// model, or a JSON definition in its style (a Prepend normalizer). The prompt's pieces are then laid out as running text.
+    /// </summary>
+    public bool IsSentencePiece => _sentencePiece is not null || _definition?.HasDummyPrefix == true;
 
     /// <summary>Id of the beginning-of-sequence token, or null when the tokenizer has none.</summary>
     public int? BeginningOfSequenceId { get; private init; }
@@ -147,7 +152,7 @@ public sealed partial class TextTokenizer
             {
                 throw new TokenizerFileException(path, "expected a JSON object");
             }
-            bool add = false;
+            bool add = AddsBeginningOfSequence;
             if (root.TryGetProperty("add_bos_token", out JsonElement a) && a.ValueKind != JsonValueKind.Null)
             {
                 add = a.ValueKind switch
@@ -176,7 +181,7 @@ public sealed partial class TextTokenizer
             {
                 throw new TokenizerFileException(path, $"add_bos_token is true but {Source} has no beginning-of-sequence token (and no bos_token names one)");
             }
-            return new TextTokenizer(_tokenizer, EndOfTextId, VocabularySize, Source + " + " + path, [.. Files, path], _sentencePiece)
+            return new TextTokenizer(_tokenizer, EndOfTextId, VocabularySize, Source + " + " + path, [.. Files, path], _sentencePiece, _definition)
             {
                 BeginningOfSequenceId = bos,
                 AddsBeginningOfSequence = add,
@@ -187,6 +192,10 @@ public sealed partial class TextTokenizer
     /// <summary>The id of a whole token, or null when the vocabulary has no such token.</summary>
     private int? TokenId(string token)
     {
+        if (_definition is not null)
+        {
+            return _definition.Id(token);
+        }
         if (_sentencePiece is not null)
         {
             int i = Array.IndexOf(_sentencePiece.Pieces, token);
@@ -218,59 +227,9 @@ public sealed partial class TextTokenizer
     }
 
     /// <summary>
-    /// A definition's parts this reader does not implement, refused with the JSON path rather than ignored (ignoring
-    /// them would shift ids silently): a normalizer; a pre-tokenizer other than plain byte-level (GPT-2's regex, no
-    /// prefix space); byte fallback, ignore_merges, subword prefixes or suffixes; a post-processor that adds tokens.
+    /// A JSON tokenizer definition: plain GPT-2 byte-level BPE from its "model" section, or with the normalizer,
+    /// pre-tokenizer, added tokens and template it names (<see cref="TokenizerDefinition"/>).
     /// </summary>
-    private static void RefuseUnimplemented(string path, JsonElement root, JsonElement model)
-    {
-        const string Reads = "this engine reads byte-level BPE definitions (GPT-2's pre-tokenization, no normalizer, nothing added around the text)";
-        if (root.TryGetProperty("normalizer", out JsonElement normalizer) && normalizer.ValueKind != JsonValueKind.Null)
-        {
-            throw new TokenizerFileException(path, $"normalizer {Kind(normalizer)} is not implemented; {Reads}");
-        }
-        if (root.TryGetProperty("pre_tokenizer", out JsonElement pre) && pre.ValueKind != JsonValueKind.Null)
-        {
-            if (TypeOf(pre) != "ByteLevel")
-            {
-                throw new TokenizerFileException(path, $"pre_tokenizer {Kind(pre)} is not implemented; {Reads}");
-            }
-            foreach ((string field, bool supported) in new[] { ("add_prefix_space", false), ("use_regex", true) })
-            {
-                if (pre.TryGetProperty(field, out JsonElement flag) && (flag.ValueKind is JsonValueKind.True or JsonValueKind.False)
-                    && flag.GetBoolean() != supported)
-                {
-                    throw new TokenizerFileException(path, $"pre_tokenizer.{field} {(supported ? "false" : "true")} is not implemented; {Reads}");
-                }
-            }
-        }
-        foreach (string field in new[] { "byte_fallback", "ignore_merges" })
-        {
-            if (model.TryGetProperty(field, out JsonElement flag) && flag.ValueKind == JsonValueKind.True)
-            {
-                throw new TokenizerFileException(path, $"model.{field} true is not implemented; {Reads}");
-            }
-        }
-        foreach (string field in new[] { "continuing_subword_prefix", "end_of_word_suffix" })
-        {
-            if (model.TryGetProperty(field, out JsonElement affix) && affix.ValueKind == JsonValueKind.String && affix.GetString()!.Length > 0)
-            {
-                throw new TokenizerFileException(path, $"model.{field} is not implemented; {Reads}");
-            }
-        }
-        if (root.TryGetProperty("post_processor", out JsonElement post) && post.ValueKind != JsonValueKind.Null && TypeOf(post) != "ByteLevel")
-        {
-            throw new TokenizerFileException(path, $"post_processor {Kind(post)} is not implemented (it may add tokens around the text); {Reads}");
-        }
-    }
-
-    private static string? TypeOf(JsonElement part) =>
-        part.ValueKind == JsonValueKind.Object && part.TryGetProperty("type", out JsonElement t) && t.ValueKind == JsonValueKind.String ? t.GetString() : null;
-
-    /// <summary>A part's "type" in quotes for a message, or its JSON text when it has none.</summary>
-    private static string Kind(JsonElement part) => TypeOf(part) is { } type ? "\"" + Echo.Of(type) + "\"" : Echo.Of(part.GetRawText());
-
-    /// <summary>Byte-level BPE from the "model" section (type "BPE", "vocab", "merges") of a JSON tokenizer definition.</summary>
     public static TextTokenizer FromDefinition(string path)
     {
         JsonDocument doc = JsonInput.TryParse(InputFile.ReadAllBytes(path, InputFile.TokenizerFileBytes), maxDepth: 64, out string problem, callerNamesDuplicates: true)
@@ -286,7 +245,6 @@ public sealed partial class TextTokenizer
             {
                 throw new TokenizerFileException(path, "model.type must be \"BPE\"; other tokenizer kinds are not supported");
             }
-            RefuseUnimplemented(path, doc.RootElement, model);
             if (!model.TryGetProperty("vocab", out JsonElement vocabEl))
             {
                 throw new TokenizerFileException(path, "model.vocab is missing");
@@ -316,7 +274,18 @@ public sealed partial class TextTokenizer
                 merges.Add(merge);
                 i++;
             }
-            return Build(vocabulary, merges, [path], path);
+            if (TokenizerDefinition.IsPlainByteLevel(doc.RootElement, model))
+            {
+                return Build(vocabulary, merges, [path], path);
+            }
+            TokenizerDefinition definition = TokenizerDefinition.Read(path, doc.RootElement, model, vocabulary, merges);
+            int eot = definition.Id(EndOfTextMarker) ?? definition.Id("</s>") ?? definition.Id("<|end_of_text|>")
+                ?? throw new TokenizerFileException(path, $"has no end-of-text token ({EndOfTextMarker}, </s> or <|end_of_text|>)");
+            return new TextTokenizer(null!, eot, definition.Tokens.Length, path, [path], definition: definition)
+            {
+                BeginningOfSequenceId = definition.TemplateStart,
+                AddsBeginningOfSequence = definition.TemplateStart is not null,
+            };
         }
     }
 
@@ -402,6 +371,11 @@ public sealed partial class TextTokenizer
     /// <summary>Encodes into <paramref name="ids"/>, and where <paramref name="ranges"/> is given each token's character range in <paramref name="text"/>.</summary>
     private void Encode(string text, bool continuation, List<int> ids, List<(int, int)>? ranges)
     {
+        if (_definition is not null)
+        {
+            _definition.Encode(text, continuation, ids, ranges);
+            return;
+        }
         if (_sentencePiece is not null)
         {
             EncodeSentencePiece(text, continuation, ids, ranges);
@@ -525,9 +499,10 @@ public sealed partial class TextTokenizer
             for (int k = 0; k < ranges.Count; k++)
             {
                 (int a, int b) = ranges[k];
-                int from = origin![a] < 0 ? 0 : origin[a];
-                int to = b > a ? origin[b - 1] + 1 : from;
-                ranges[k] = (from, Math.Max(from, to));
+                // A range the library reports past the normalized text (a malformed model's) ends at the text's end.
+                int from = a < origin!.Count ? Math.Max(0, origin[a]) : text.Length;
+                int to = b > a ? (b - 1 < origin.Count ? origin[b - 1] + 1 : text.Length) : from;
+                ranges[k] = (from, Math.Clamp(to, from, text.Length));
             }
         }
     }
@@ -536,12 +511,13 @@ public sealed partial class TextTokenizer
     /// A token as the vocabulary spells it: a SentencePiece piece (U+2581 for a space, &lt;0xNN&gt; for a byte, control
     /// pieces such as &lt;s&gt; by name), or for byte-level BPE the text of its bytes (U+FFFD for part of a character).
     /// </summary>
-    public string TokenText(int id) => _sentencePiece is not null
+    public string TokenText(int id) => _definition is not null ? _definition.TokenText(id) : _sentencePiece is not null
         ? (uint)id < (uint)_sentencePiece.Pieces.Length ? _sentencePiece.Pieces[id] : throw new ArgumentOutOfRangeException(nameof(id), id, "not a piece of the model")
         : Decode([id]);
 
     /// <summary>The text of a sequence of ids (bytes that do not form whole UTF-8 characters become U+FFFD).</summary>
-    public string Decode(IEnumerable<int> ids) => (_sentencePiece is not null ? _sentencePiece.Decode(ids) : _tokenizer.Decode(ids)) ?? string.Empty;
+    public string Decode(IEnumerable<int> ids) =>
+        (_definition is not null ? _definition.Decode(ids) : _sentencePiece is not null ? _sentencePiece.Decode(ids) : _tokenizer.Decode(ids)) ?? string.Empty;
 
     private static TextTokenizer Build(Dictionary<string, int> vocabulary, List<string> merges, string[] files, string vocabSource)
     {

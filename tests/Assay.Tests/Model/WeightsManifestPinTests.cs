@@ -105,7 +105,10 @@ public sealed class WeightsManifestPinTests
         Assert.Contains("is not the folder's", Assert.Throws<ManifestException>(() => WeightsManifest.Pin(llama, entry, repin: true)).Message, StringComparison.Ordinal);
     }
 
-    internal static string RepositoryManifest()
+    internal static string RepositoryManifest() => Path.Combine(RepositoryRoot(), "weights-manifest");
+
+    /// <summary>The checkout the tests were built from: the nearest folder above them with a weights-manifest.</summary>
+    internal static string RepositoryRoot()
     {
         string? dir = AppContext.BaseDirectory;
         while (dir is not null && !Directory.Exists(Path.Combine(dir, "weights-manifest")))
@@ -113,6 +116,6 @@ public sealed class WeightsManifestPinTests
             dir = Path.GetDirectoryName(dir);
         }
         Assert.NotNull(dir);
-        return Path.Combine(dir, "weights-manifest");
+        return dir;
     }
 }

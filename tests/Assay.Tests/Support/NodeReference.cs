@@ -1,0 +1,43 @@
+using System.Diagnostics;
+
+namespace Assay.Tests.Support;
+
+/// <summary>
+/// Runs the node reference scripts (Reference/*.cjs) with the packages of Reference/package.json, installed by
+/// <c>npm ci --prefix tests/Assay.Tests/Reference</c> (as .ci/run does). A missing node or package fails the test with
+/// that command; it never skips.
+/// </summary>
+public static class NodeReference
+{
+    public static string Run(string script, params string[] args)
+    {
+        string modules = Path.Combine(Model.WeightsManifestPinTests.RepositoryRoot(), "tests", "Assay.Tests", "Reference", "node_modules");
+        Assert.True(Directory.Exists(Path.Combine(modules, "@huggingface", "tokenizers")),
+            $"{modules} lacks @huggingface/tokenizers: npm ci --prefix tests/Assay.Tests/Reference");
+        var psi = new ProcessStartInfo("node") { RedirectStandardOutput = true, RedirectStandardError = true };
+        psi.Environment["NODE_PATH"] = modules;
+        psi.ArgumentList.Add(PythonReference.Script(script));
+        foreach (string a in args)
+        {
+            psi.ArgumentList.Add(a);
+        }
+        Process p;
+        try
+        {
+            p = Process.Start(psi)!;
+        }
+        catch (System.ComponentModel.Win32Exception e)
+        {
+            Assert.Fail($"node is missing ({e.Message}): apt-get install nodejs npm");
+            throw;
+        }
+        using (p)
+        {
+            Task<string> stdout = p.StandardOutput.ReadToEndAsync();
+            Task<string> stderr = p.StandardError.ReadToEndAsync();
+            p.WaitForExit();
+            Assert.True(p.ExitCode == 0, $"{script} failed ({p.ExitCode})\n{stderr.Result}");
+            return stdout.Result;
+        }
+    }
+}
