@@ -8,7 +8,7 @@ namespace Assay.Tokenization;
 
 /// <summary>
 /// A JSON tokenizer definition (tokenizer.json) beyond plain GPT-2 byte-level BPE: the parts it names are read and
-/// run in their order — added tokens matched in the raw text first (lstrip/rstrip honoured); then the normalizer (NFC,
+/// run in their order — added tokens matched in the raw text first (lstrip, rstrip and single_word honoured); then the normalizer (NFC,
 /// NFKC, Prepend, Replace of a string, or a Sequence of these); the pre-tokenizer (Split by a regex, isolating its
 /// matches; ByteLevel, with or without GPT-2's pattern; or a Sequence of these); the BPE model (byte-level when a
 /// ByteLevel pre-tokenizer is named, else on the normalized characters, with byte_fallback to &lt;0xNN&gt; pieces,
@@ -26,12 +26,12 @@ internal sealed class TokenizerDefinition
     private readonly IReadOnlyList<(Func<string, string> Apply, bool Prepends)> _normalizers;
     private readonly IReadOnlyList<Regex> _splits;
     private readonly Dictionary<string, int> _vocabulary;
-    private readonly (string Content, int Id, bool LeftStrip, bool RightStrip)[] _added;
+    private readonly (string Content, int Id, bool LeftStrip, bool RightStrip, bool SingleWord)[] _added;
     private readonly bool _byteLevel, _ignoreMerges, _byteFallback, _fuseUnknown;
     private readonly int _unknown;
 
     private TokenizerDefinition(string path, BpeTokenizer bpe, IReadOnlyList<(Func<string, string>, bool)> normalizers, IReadOnlyList<Regex> splits,
-        Dictionary<string, int> vocabulary, (string, int, bool, bool)[] added, bool byteLevel, bool ignoreMerges, bool byteFallback, bool fuseUnknown,
+        Dictionary<string, int> vocabulary, (string, int, bool, bool, bool)[] added, bool byteLevel, bool ignoreMerges, bool byteFallback, bool fuseUnknown,
         int unknown, int? templateStart)
     {
         _path = path;
@@ -51,7 +51,7 @@ internal sealed class TokenizerDefinition
         {
             Tokens[id] = token;
         }
-        foreach ((string content, int id, _, _) in added)
+        foreach ((string content, int id, _, _, _) in added)
         {
             Tokens[id] = content;
         }
@@ -69,7 +69,7 @@ internal sealed class TokenizerDefinition
     /// <summary>The id of an added or vocabulary token, or null.</summary>
     public int? Id(string token)
     {
-        foreach ((string content, int id, _, _) in _added)
+        foreach ((string content, int id, _, _, _) in _added)
         {
             if (content == token)
             {
@@ -232,6 +232,11 @@ internal sealed class TokenizerDefinition
         for (int i = 0; i < _added.Length; i++)
         {
             int found = text.IndexOf(_added[i].Content, at, StringComparison.Ordinal);
+            // single_word: only an occurrence with no word character right before or after it.
+            while (found >= 0 && _added[i].SingleWord && !WholeWord(text, found, _added[i].Content.Length))
+            {
+                found = text.IndexOf(_added[i].Content, found + 1, StringComparison.Ordinal);
+            }
             if (found >= 0 && (best < 0 || found < best || (found == best && _added[i].Content.Length > bestLength)))
             {
                 (best, bestLength, bestIndex) = (found, _added[i].Content.Length, i);
@@ -257,6 +262,12 @@ internal sealed class TokenizerDefinition
             }
         }
         return (bestIndex, _added[bestIndex].Id, from, to);
+    }
+
+    private static bool WholeWord(string text, int at, int length)
+    {
+        static bool Word(char c) => char.IsLetterOrDigit(c) || c == '_';
+        return (at == 0 || !Word(text[at - 1])) && (at + length >= text.Length || !Word(text[at + length]));
     }
 
     private void EncodeSegment(string text, int start, int end, bool continuation, List<int> ids, List<(int, int)>? ranges)
@@ -494,9 +505,9 @@ internal sealed class TokenizerDefinition
         }
     }
 
-    private static List<(string, int, bool, bool)> AddedTokens(string path, JsonElement root, Dictionary<string, int> vocabulary)
+    private static List<(string, int, bool, bool, bool)> AddedTokens(string path, JsonElement root, Dictionary<string, int> vocabulary)
     {
-        var added = new List<(string, int, bool, bool)>();
+        var added = new List<(string, int, bool, bool, bool)>();
         if (!root.TryGetProperty("added_tokens", out JsonElement list) || list.ValueKind == JsonValueKind.Null)
         {
             return added;
@@ -533,21 +544,17 @@ internal sealed class TokenizerDefinition
                 throw Refuse(path, at + ".id", $"{id} is another token's id in model.vocab");
             }
             bool special = Bool(path, t, at + ".special");
-            if (Bool(path, t, at + ".single_word"))
-            {
-                throw Refuse(path, at + ".single_word", "true is not implemented");
-            }
             if (!special && Bool(path, t, at + ".normalized"))
             {
                 throw Refuse(path, at + ".normalized", "true on a non-special token is not implemented (it is matched in the raw text)");
             }
-            added.Add((content, id, Bool(path, t, at + ".lstrip"), Bool(path, t, at + ".rstrip")));
+            added.Add((content, id, Bool(path, t, at + ".lstrip"), Bool(path, t, at + ".rstrip"), Bool(path, t, at + ".single_word")));
         }
         return added;
     }
 
     /// <summary>The post-processor: none, ByteLevel, or a TemplateProcessing (alone or in a Sequence) whose single template is [special token]? then $A.</summary>
-    private static int? Template(string path, JsonElement root, List<(string Content, int Id, bool, bool)> added)
+    private static int? Template(string path, JsonElement root, List<(string Content, int Id, bool, bool, bool)> added)
     {
         if (!root.TryGetProperty("post_processor", out JsonElement post) || post.ValueKind == JsonValueKind.Null)
         {
@@ -592,7 +599,7 @@ internal sealed class TokenizerDefinition
                         }
                         string name = String(path, special, itemAt + ".SpecialToken", "id");
                         int id = -1;
-                        foreach ((string content, int addedId, _, _) in added)
+                        foreach ((string content, int addedId, _, _, _) in added)
                         {
                             if (content == name)
                             {

@@ -24,7 +24,7 @@ public sealed class TokenizerDefinitionTests : IDisposable
         "Hello wörld", "Café naïve résumé über", "東京 日本語の文", "emoji 😀 and 🚀!", "digits 123 4567 89 0.5 1234567",
         "runs   of    spaces", "tabs\tand\t\ttabs", "new\nlines\n\n", "  leading and trailing  ", "bytes ʘ ᚠ ߷ outside",
         "", "x", " ", "I'M HERE, you'RE there", "Hello<|endoftext|>world", "<|im_start|> user says hi<|im_end|>", "x <|eot_id|> y",
-        "e\u0301 and é (NFD and NFC)", "the theatre in the heart",
+        "e\u0301 and é (NFD and NFC)", "the theatre in the heart", "call <|tool|> now",
     ];
 
     private readonly TempFolder _temp = new();
@@ -72,6 +72,30 @@ public sealed class TokenizerDefinitionTests : IDisposable
                 Assert.True(special.SequenceEqual(withStart), $"{name}, line {i} with the template's tokens: reference [{string.Join(",", special)}], engine [{string.Join(",", withStart)}]");
             }
         }
+    }
+
+    /// <summary>
+    /// single_word, as the format documents it (from memory: "the token ing would match on tokenizing if this option is
+    /// false, but not on tokenizing with true"): only an occurrence with no letter, digit or underscore beside it is
+    /// the added token. Worked by hand on the SentencePiece-style fixture, where "ing" is otherwise spelled in, g.
+    /// (The npm reference does not honour this option, so it is not the outside check here.)
+    /// </summary>
+    [Fact]
+    public void A_single_word_token_matches_only_whole_words()
+    {
+        JsonObject d = SentencePieceStyle();
+        int id = d["model"]!["vocab"]!.AsObject().Count;
+        d["model"]!["vocab"]!["ing"] = id;
+        d["added_tokens"]!.AsArray().Add(Added(id, "ing", singleWord: true, special: false));
+        string folder = _temp.File("single");
+        Directory.CreateDirectory(folder);
+        File.WriteAllText(Path.Combine(folder, "tokenizer.json"), d.ToJsonString());
+        TextTokenizer t = TextTokenizer.OpenFolder(folder);
+        // "sing ing": the "ing" inside "sing" stays part of the word; the lone "ing" after the space is the added token.
+        int[] expected = [.. t.EncodeContinuation("sing "), id];
+        Assert.Equal(expected, t.EncodeContinuation("sing ing"));
+        Assert.DoesNotContain(id, t.EncodeContinuation("ringing"));
+        Assert.DoesNotContain(id, t.EncodeContinuation("sing"));
     }
 
     [Theory]
@@ -134,9 +158,9 @@ public sealed class TokenizerDefinitionTests : IDisposable
         Assert.Contains(message, e.Message, StringComparison.Ordinal);
     }
 
-    private static JsonObject Added(int id, string content, bool lstrip = false, bool rstrip = false) => new()
+    private static JsonObject Added(int id, string content, bool lstrip = false, bool rstrip = false, bool singleWord = false, bool special = true) => new()
     {
-        ["id"] = id, ["content"] = content, ["single_word"] = false, ["lstrip"] = lstrip, ["rstrip"] = rstrip, ["normalized"] = false, ["special"] = true,
+        ["id"] = id, ["content"] = content, ["single_word"] = singleWord, ["lstrip"] = lstrip, ["rstrip"] = rstrip, ["normalized"] = false, ["special"] = special,
     };
 
     /// <summary>Byte-level BPE over GPT-2's vocabulary with a split pattern, added tokens after it, and optionally a template that puts <paramref name="bos"/> first.</summary>
@@ -145,7 +169,7 @@ public sealed class TokenizerDefinitionTests : IDisposable
         var added = new JsonArray
         {
             Added(50256, "<|endoftext|>"), Added(50257, "<|begin_of_text|>"), Added(50258, "<|eot_id|>", lstrip: true, rstrip: true),
-            Added(50259, "<|im_start|>"), Added(50260, "<|im_end|>"),
+            Added(50259, "<|im_start|>"), Added(50260, "<|im_end|>"), Added(50261, "<|tool|>", special: false),
         };
         JsonNode post = bos is null
             ? new JsonObject { ["type"] = "ByteLevel", ["add_prefix_space"] = false, ["trim_offsets"] = false, ["use_regex"] = false }
