@@ -19,11 +19,14 @@ internal sealed class SentencePieceModel
     public const char Space = '\u2581';
 
     private readonly SentencePieceTokenizer _tokenizer;
+    private readonly Unigram? _unigram;
     private readonly bool _addDummyPrefix, _removeExtraWhitespaces;
 
-    private SentencePieceModel(SentencePieceTokenizer tokenizer, string[] pieces, bool addDummyPrefix, bool removeExtraWhitespaces, int unknown, int bos, int eos)
+    private SentencePieceModel(SentencePieceTokenizer tokenizer, string[] pieces, bool addDummyPrefix, bool removeExtraWhitespaces, int unknown, int bos, int eos,
+        Unigram? unigram)
     {
         _tokenizer = tokenizer;
+        _unigram = unigram;
         Pieces = pieces;
         _addDummyPrefix = addDummyPrefix;
         _removeExtraWhitespaces = removeExtraWhitespaces;
@@ -47,7 +50,7 @@ internal sealed class SentencePieceModel
     public static SentencePieceModel Read(string path)
     {
         byte[] bytes = InputFile.ReadAllBytes(path, InputFile.TokenizerFileBytes);
-        var pieces = new List<(string Piece, int Type)>();
+        var pieces = new List<(string Piece, int Type, float Score)>();
         var trainer = new Dictionary<int, long>();
         string normalizerName = "";
         bool addDummyPrefix = true, removeExtra = true, escape = true;
@@ -103,10 +106,6 @@ internal sealed class SentencePieceModel
         {
             throw new TokenizerFileException(path, $"trainer_spec.model_type {modelType} (word or character models) is not implemented; BPE and unigram models are read");
         }
-        if (modelType == 1 && byteFallback)
-        {
-            throw new TokenizerFileException(path, "trainer_spec.byte_fallback on a unigram model is not implemented (the encoder library gives such models' byte pieces the wrong ids)");
-        }
         if (trainer.GetValueOrDefault(24, 0) != 0)
         {
             throw new TokenizerFileException(path, "trainer_spec.treat_whitespace_as_suffix true is not implemented");
@@ -123,10 +122,15 @@ internal sealed class SentencePieceModel
         var ids = new Dictionary<string, int>(StringComparer.Ordinal);
         for (int i = 0; i < pieces.Count; i++)
         {
-            (string piece, int type) = pieces[i];
+            (string piece, int type, _) = pieces[i];
             if (!ids.TryAdd(piece, i))
             {
                 throw new TokenizerFileException(path, $"piece {i} '{Echo.Of(piece)}' repeats piece {ids[piece]}");
+            }
+            if (type == 6 && !(piece.Length == 6 && piece.StartsWith("<0x", StringComparison.Ordinal) && piece[5] == '>'
+                && Uri.IsHexDigit(piece[3]) && Uri.IsHexDigit(piece[4])))
+            {
+                throw new TokenizerFileException(path, $"piece {i} '{Echo.Of(piece)}' is of the byte type (6) but not named <0xNN>");
             }
             if (type == 4)
             {
@@ -173,7 +177,9 @@ internal sealed class SentencePieceModel
         {
             throw new TokenizerFileException(path, $"the encoder library refuses the model ({e.Message})", e);
         }
-        return new SentencePieceModel(tokenizer, [.. pieces.Select(p => p.Piece)], addDummyPrefix, removeExtra, unknown, bos, eos);
+        // Unigram models are encoded here (the library's unigram path fails on byte fallback); BPE by the library.
+        Unigram? unigram = modelType == 1 ? new Unigram([.. pieces], unknown, byteFallback) : null;
+        return new SentencePieceModel(tokenizer, [.. pieces.Select(p => p.Piece)], addDummyPrefix, removeExtra, unknown, bos, eos, unigram);
     }
 
     /// <summary>
@@ -184,6 +190,11 @@ internal sealed class SentencePieceModel
     {
         if (normalized.IsEmpty)
         {
+            return;
+        }
+        if (_unigram is not null)
+        {
+            _unigram.Encode(normalized, offset, ids, ranges);
             return;
         }
         if (ranges is null)
@@ -269,22 +280,136 @@ internal sealed class SentencePieceModel
 
     public string Decode(IEnumerable<int> ids) => _tokenizer.Decode(ids) ?? string.Empty;
 
-    private static (string, int) ReadPiece(ByteString message)
+    private static (string, int, float) ReadPiece(ByteString message)
     {
         var input = new CodedInputStream(message.ToByteArray());
         string piece = "";
         int type = 1;
+        float score = 0;
         uint tag;
         while ((tag = input.ReadTag()) != 0)
         {
             switch (WireFormat.GetTagFieldNumber(tag))
             {
                 case 1: piece = input.ReadString(); break;
+                case 2: score = input.ReadFloat(); break;
                 case 3: type = input.ReadEnum(); break;
                 default: input.SkipLastField(); break;
             }
         }
-        return (piece, type);
+        return (piece, type, score);
+    }
+
+    /// <summary>
+    /// Unigram segmentation as the reference implementation defines it: the path through the normalized text whose
+    /// pieces' scores (float32) sum highest, normal pieces only; where no piece covers a character, that character is an
+    /// unknown piece scored 10 below the lowest normal piece; ties go to the path found first (earlier starts, then
+    /// shorter pieces); runs of unknown pieces are one, and under byte fallback an unknown piece becomes the
+    /// &lt;0xNN&gt; pieces of its UTF-8 bytes.
+    /// </summary>
+    private sealed class Unigram
+    {
+        private const float UnknownPenalty = 10f;
+        private readonly Dictionary<string, (int Id, float Score)> _normal = new(StringComparer.Ordinal);
+        private readonly int _longest, _unknown;
+        private readonly float _unknownScore;
+        private readonly int[]? _bytes;
+
+        public Unigram((string Piece, int Type, float Score)[] pieces, int unknown, bool byteFallback)
+        {
+            float min = float.MaxValue;
+            for (int i = 0; i < pieces.Length; i++)
+            {
+                if (pieces[i].Type == 1 && pieces[i].Piece.Length > 0)
+                {
+                    _normal[pieces[i].Piece] = (i, pieces[i].Score);
+                    _longest = Math.Max(_longest, pieces[i].Piece.Length);
+                    min = Math.Min(min, pieces[i].Score);
+                }
+            }
+            _unknown = unknown;
+            _unknownScore = (_normal.Count == 0 ? 0 : min) - UnknownPenalty;
+            if (byteFallback)
+            {
+                _bytes = new int[256];
+                for (int i = 0; i < pieces.Length; i++)
+                {
+                    if (pieces[i].Type == 6)
+                    {
+                        _bytes[Convert.ToInt32(pieces[i].Piece[3..5], 16)] = i;
+                    }
+                }
+            }
+        }
+
+        public void Encode(ReadOnlySpan<char> text, int offset, List<int> ids, List<(int, int)>? ranges)
+        {
+            int n = text.Length;
+            var best = new float[n + 1];
+            var from = new int[n + 1];
+            var piece = new int[n + 1];
+            Array.Fill(from, -1);
+            for (int start = 0; start < n; start++)
+            {
+                if (start > 0 && from[start] < 0)
+                {
+                    continue;   // inside a surrogate pair
+                }
+                int one = char.IsHighSurrogate(text[start]) && start + 1 < n && char.IsLowSurrogate(text[start + 1]) ? 2 : 1;
+                bool single = false;
+                string window = text.Slice(start, Math.Min(_longest, n - start)).ToString();
+                for (int length = 1; length <= window.Length; length++)
+                {
+                    if (_normal.TryGetValue(window[..length], out (int Id, float Score) p))
+                    {
+                        single |= length == one;
+                        Relax(start, start + length, p.Id, p.Score);
+                    }
+                }
+                if (!single)
+                {
+                    Relax(start, start + one, _unknown, _unknownScore);
+                }
+            }
+
+            void Relax(int start, int end, int id, float score)
+            {
+                float candidate = best[start] + score;
+                if (from[end] < 0 || candidate > best[end])
+                {
+                    (best[end], from[end], piece[end]) = (candidate, start, id);
+                }
+            }
+
+            var path = new List<(int Id, int Start, int End)>();
+            for (int end = n; end > 0; end = from[end])
+            {
+                path.Add((piece[end], from[end], end));
+            }
+            path.Reverse();
+            foreach ((int id, int a, int b) in path)
+            {
+                if (id == _unknown && _bytes is not null)
+                {
+                    foreach (byte x in Encoding.UTF8.GetBytes(text[a..b].ToString()))
+                    {
+                        ids.Add(_bytes[x]);
+                        ranges?.Add((offset + a, offset + b));
+                    }
+                    continue;
+                }
+                if (id == _unknown && ids.Count > 0 && ids[^1] == _unknown)
+                {
+                    if (ranges is not null)
+                    {
+                        ranges[^1] = (ranges[^1].Item1, offset + b);
+                    }
+                    continue;
+                }
+                ids.Add(id);
+                ranges?.Add((offset + a, offset + b));
+            }
+        }
     }
 
     /// <summary>The varint fields of a message (the trainer spec's ids, flags and model type); other fields skipped.</summary>

@@ -5,7 +5,6 @@ usage: sentencepiece_reference.py OUT_DIR CORPUS_TXT LINES_JSON
 Trains eight small models on CORPUS_TXT — BPE and unigram, byte fallback on and off, remove_extra_whitespaces on and
 off, all with the identity normalization rules and 400 pieces — as OUT_DIR/{name}.model, and prints JSON
 {"ids": {name: [[ids of each line]]}, "pieces": {name: [piece strings of each line]}} for the lines of LINES_JSON.
-A model the engine refuses (unigram with byte fallback) is trained too, so the refusal is tested on a real file.
 """
 import json
 import os
