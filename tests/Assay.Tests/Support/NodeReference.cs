@@ -11,9 +11,16 @@ public static class NodeReference
 {
     public static string Run(string script, params string[] args)
     {
-        string modules = Path.Combine(Model.WeightsManifestPinTests.RepositoryRoot(), "tests", "Assay.Tests", "Reference", "node_modules");
-        Assert.True(Directory.Exists(Path.Combine(modules, "@huggingface", "tokenizers")),
-            $"{modules} lacks @huggingface/tokenizers: npm ci --prefix tests/Assay.Tests/Reference");
+        string reference = Path.Combine(Model.WeightsManifestPinTests.RepositoryRoot(), "tests", "Assay.Tests", "Reference");
+        string modules = Path.Combine(reference, "node_modules");
+        using (var package = System.Text.Json.JsonDocument.Parse(File.ReadAllText(Path.Combine(reference, "package.json"))))
+        {
+            foreach (System.Text.Json.JsonProperty dependency in package.RootElement.GetProperty("dependencies").EnumerateObject())
+            {
+                Assert.True(Directory.Exists(Path.Combine(modules, dependency.Name)),
+                    $"{modules} lacks {dependency.Name}: npm ci --prefix tests/Assay.Tests/Reference");
+            }
+        }
         var psi = new ProcessStartInfo("node") { RedirectStandardOutput = true, RedirectStandardError = true };
         psi.Environment["NODE_PATH"] = modules;
         psi.ArgumentList.Add(PythonReference.Script(script));

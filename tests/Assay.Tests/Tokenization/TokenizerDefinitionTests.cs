@@ -10,7 +10,7 @@ namespace Assay.Tests.Tokenization;
 /// JSON tokenizer definitions in the styles of today's checkpoints, built by the test — byte-level BPE with a
 /// Llama-3-style split pattern and ignore_merges, with a Qwen2-style pattern and NFC, and SentencePiece-style BPE as
 /// JSON (Prepend/Replace normalizer, byte fallback, fused unknowns) — against an independent implementation of the
-/// format (@huggingface/tokenizers 0.2.0 from the npm registry, run with node: Reference/json_tokenizer_reference.cjs),
+/// format (the pure-JavaScript npm package pinned in Reference/package.json, run with node: Reference/json_tokenizer_reference.cjs),
 /// with added and special tokens and the post-processor's template. The split patterns are recalled from the
 /// published definitions (from memory).
 /// </summary>
