@@ -10,7 +10,7 @@ namespace Assay.Tokenization;
 /// A JSON tokenizer definition (tokenizer.json) beyond plain GPT-2 byte-level BPE: the parts it names are read and
 /// run in their order — added tokens matched in the raw text first (lstrip, rstrip and single_word honoured); then the normalizer (NFC,
 /// NFKC, Prepend, Replace of a string, or a Sequence of these); the pre-tokenizer (Split by a regex, isolating its
-/// matches; ByteLevel, with or without GPT-2's pattern; or a Sequence of these); the BPE model (byte-level when a
+/// matches; ByteLevel, with or without GPT-2's pattern; a Sequence of these; or Metaspace alone); the BPE model (byte-level when a
 /// ByteLevel pre-tokenizer is named, else on the normalized characters, with byte_fallback to &lt;0xNN&gt; pieces,
 /// fuse_unk and ignore_merges); and the post-processor's template, which says whether a beginning-of-sequence token goes
 /// first. Merges are done by Microsoft.ML.Tokenizers' BpeTokenizer, one pre-token per call. Any other part or value is
@@ -25,19 +25,21 @@ internal sealed class TokenizerDefinition
     private readonly BpeTokenizer _bpe;
     private readonly IReadOnlyList<(Func<string, string> Apply, bool Prepends)> _normalizers;
     private readonly IReadOnlyList<Regex> _splits;
+    private readonly MetaspaceRule? _metaspace;
     private readonly Dictionary<string, int> _vocabulary;
     private readonly (string Content, int Id, bool LeftStrip, bool RightStrip, bool SingleWord)[] _added;
     private readonly bool _byteLevel, _ignoreMerges, _byteFallback, _fuseUnknown;
     private readonly int _unknown;
 
     private TokenizerDefinition(string path, BpeTokenizer bpe, IReadOnlyList<(Func<string, string>, bool)> normalizers, IReadOnlyList<Regex> splits,
-        Dictionary<string, int> vocabulary, (string, int, bool, bool, bool)[] added, bool byteLevel, bool ignoreMerges, bool byteFallback, bool fuseUnknown,
+        MetaspaceRule? metaspace, Dictionary<string, int> vocabulary, (string, int, bool, bool, bool)[] added, bool byteLevel, bool ignoreMerges, bool byteFallback, bool fuseUnknown,
         int unknown, int? templateStart)
     {
         _path = path;
         _bpe = bpe;
         _normalizers = normalizers;
         _splits = splits;
+        _metaspace = metaspace;
         _vocabulary = vocabulary;
         _added = added;
         _byteLevel = byteLevel;
@@ -57,8 +59,11 @@ internal sealed class TokenizerDefinition
         }
     }
 
-    /// <summary>Whether the normalizer puts a prefix before each text (SentencePiece-style definitions: the dummy-prefix ▁), which a continuation leaves out.</summary>
-    public bool HasDummyPrefix => _normalizers.Any(n => n.Prepends);
+    /// <summary>
+    /// Whether the normalizer or a Metaspace pre-tokenizer puts a prefix before each text (SentencePiece-style
+    /// definitions: the dummy-prefix ▁), which a continuation leaves out.
+    /// </summary>
+    public bool HasDummyPrefix => _normalizers.Any(n => n.Prepends) || _metaspace is { Scheme: not MetaspacePrepend.Never };
 
     /// <summary>Every token's text by id (byte-level tokens in the byte alphabet).</summary>
     public string[] Tokens { get; }
@@ -144,9 +149,17 @@ internal sealed class TokenizerDefinition
         }
         var splits = new List<Regex>();
         bool byteLevel = false;
+        MetaspaceRule? metaspace = null;
         if (root.TryGetProperty("pre_tokenizer", out JsonElement p) && p.ValueKind != JsonValueKind.Null)
         {
-            PreTokenizers(path, "pre_tokenizer", p, splits, ref byteLevel);
+            if (Type(p) == "Metaspace")
+            {
+                metaspace = Metaspace(path, "pre_tokenizer", p);
+            }
+            else
+            {
+                PreTokenizers(path, "pre_tokenizer", p, splits, ref byteLevel);
+            }
         }
         bool byteFallback = Bool(path, model, "model.byte_fallback");
         bool ignoreMerges = Bool(path, model, "model.ignore_merges");
@@ -201,7 +214,7 @@ internal sealed class TokenizerDefinition
         {
             throw new TokenizerFileException(path, $"the BPE tables are inconsistent ({e.Message})", e);
         }
-        return new TokenizerDefinition(path, bpe, normalizers, splits, vocabulary, [.. added], byteLevel, ignoreMerges, byteFallback, fuseUnknown, unknown, start);
+        return new TokenizerDefinition(path, bpe, normalizers, splits, metaspace, vocabulary, [.. added], byteLevel, ignoreMerges, byteFallback, fuseUnknown, unknown, start);
     }
 
     /// <summary>
@@ -214,7 +227,7 @@ internal sealed class TokenizerDefinition
         while (at < text.Length)
         {
             (int match, int id, int from, int to) = NextAdded(text, at);
-            EncodeSegment(text, at, match < 0 ? text.Length : from, continuation && at == 0, ids, ranges);
+            EncodeSegment(text, at, match < 0 ? text.Length : from, continuation, ids, ranges);
             if (match < 0)
             {
                 return;
@@ -280,14 +293,32 @@ internal sealed class TokenizerDefinition
         string normalized = segment;
         foreach ((Func<string, string> normalize, bool prepends) in _normalizers)
         {
-            if (!(prepends && continuation))
+            if (!(prepends && continuation && start == 0))
             {
                 normalized = normalize(normalized);
             }
         }
         // Offsets stay exact when normalizing kept the text or only put a prefix before it; otherwise each token gets the segment's range.
         int shift = normalized.EndsWith(segment, StringComparison.Ordinal) ? normalized.Length - segment.Length : -1;
-        List<(int Start, int Length)> pieces = [(0, normalized.Length)];
+        List<(int Start, int Length)> pieces;
+        if (_metaspace is { } m)
+        {
+            // Spaces become the replacement (one character for one, so offsets hold); the prefix goes before a segment
+            // that does not start with it: every segment (always), the text's first one (first), or none (never).
+            normalized = normalized.Replace(' ', m.Replacement);
+            bool prepend = !(continuation && start == 0) && normalized.Length > 0 && normalized[0] != m.Replacement
+                && (m.Scheme == MetaspacePrepend.Always || (m.Scheme == MetaspacePrepend.First && start == 0));
+            if (prepend)
+            {
+                normalized = m.Replacement + normalized;
+                shift = shift < 0 ? -1 : shift + 1;
+            }
+            pieces = m.Split ? BeforeEach(normalized, m.Replacement) : [(0, normalized.Length)];
+        }
+        else
+        {
+            pieces = [(0, normalized.Length)];
+        }
         try
         {
             foreach (Regex split in _splits)
@@ -313,6 +344,22 @@ internal sealed class TokenizerDefinition
                 }
             }
         }
+    }
+
+    /// <summary>Split before each <paramref name="mark"/>, which starts the next piece (the "MergedWithNext" behaviour).</summary>
+    private static List<(int, int)> BeforeEach(string text, char mark)
+    {
+        var result = new List<(int, int)>();
+        int at = 0;
+        for (int i = 1; i <= text.Length; i++)
+        {
+            if (i == text.Length || text[i] == mark)
+            {
+                result.Add((at, i - at));
+                at = i;
+            }
+        }
+        return result;
     }
 
     /// <summary>Split with the "Isolated" behaviour: each match and each stretch between matches is its own piece.</summary>
@@ -447,10 +494,48 @@ internal sealed class TokenizerDefinition
         }
     }
 
+    /// <summary>
+    /// A Metaspace pre-tokenizer: its replacement (one character), when it puts the prefix before a text
+    /// (prepend_scheme, or the older add_prefix_space: true as always, false as never; always when neither is given),
+    /// and whether it splits before each replacement (split, true when absent).
+    /// </summary>
+    private static MetaspaceRule Metaspace(string path, string at, JsonElement p)
+    {
+        string replacement = p.TryGetProperty("replacement", out JsonElement r) && r.ValueKind != JsonValueKind.Null ? String(path, p, at, "replacement") : "\u2581";
+        if (replacement.Length != 1)
+        {
+            throw Refuse(path, at + ".replacement", $"'{Echo.Of(replacement)}' is not one character; only a one-character replacement is implemented");
+        }
+        if (p.TryGetProperty("str_rep", out JsonElement rep) && rep.ValueKind == JsonValueKind.String && rep.GetString() != replacement)
+        {
+            throw Refuse(path, at + ".str_rep", "differs from replacement");
+        }
+        MetaspacePrepend scheme;
+        if (p.TryGetProperty("prepend_scheme", out JsonElement s) && s.ValueKind != JsonValueKind.Null)
+        {
+            scheme = (s.ValueKind == JsonValueKind.String ? s.GetString() : null) switch
+            {
+                "always" => MetaspacePrepend.Always,
+                "first" => MetaspacePrepend.First,
+                "never" => MetaspacePrepend.Never,
+                _ => throw Refuse(path, at + ".prepend_scheme", $"{Echo.Of(s.GetRawText())} is not \"always\", \"first\" or \"never\""),
+            };
+        }
+        else
+        {
+            bool hasPrefix = p.TryGetProperty("add_prefix_space", out JsonElement a) && a.ValueKind != JsonValueKind.Null;
+            scheme = !hasPrefix || Bool(path, p, at + ".add_prefix_space") ? MetaspacePrepend.Always : MetaspacePrepend.Never;
+        }
+        bool split = !(p.TryGetProperty("split", out JsonElement sp) && sp.ValueKind != JsonValueKind.Null) || Bool(path, p, at + ".split");
+        return new MetaspaceRule(replacement[0], scheme, split);
+    }
+
     private static void PreTokenizers(string path, string at, JsonElement p, List<Regex> splits, ref bool byteLevel)
     {
         switch (Type(p))
         {
+            case "Metaspace":
+                throw Refuse(path, at + ".type", "\"Metaspace\" inside a Sequence is not implemented; Metaspace is read as the only pre-tokenizer");
             case "ByteLevel":
                 if (p.TryGetProperty("add_prefix_space", out JsonElement prefix) && prefix.ValueKind == JsonValueKind.True)
                 {
@@ -501,7 +586,7 @@ internal sealed class TokenizerDefinition
                 break;
             }
             default:
-                throw Refuse(path, at + ".type", $"{Kind(p)} is not implemented; ByteLevel, Split and Sequence are");
+                throw Refuse(path, at + ".type", $"{Kind(p)} is not implemented; ByteLevel, Split, Sequence and Metaspace are");
         }
     }
 
@@ -644,4 +729,13 @@ internal sealed class TokenizerDefinition
         o.TryGetProperty(name, out JsonElement e) && e.ValueKind == JsonValueKind.Array ? e : throw Refuse(path, at + "." + name, "is missing or not a list");
 
     private static TokenizerFileException Refuse(string path, string at, string problem) => new(path, $"{at} {problem}");
+
+    private enum MetaspacePrepend
+    {
+        Always,
+        First,
+        Never,
+    }
+
+    private readonly record struct MetaspaceRule(char Replacement, MetaspacePrepend Scheme, bool Split);
 }

@@ -85,7 +85,7 @@ public sealed class TextTokenizerTests : IDisposable
     /// </summary>
     [Theory]
     [InlineData("\"normalizer\": {\"type\": \"Lowercase\"}", "normalizer.type \"Lowercase\" is not implemented")]
-    [InlineData("\"pre_tokenizer\": {\"type\": \"Metaspace\", \"replacement\": \"\u2581\"}", "pre_tokenizer.type \"Metaspace\" is not implemented")]
+    [InlineData("\"pre_tokenizer\": {\"type\": \"WhitespaceSplit\"}", "pre_tokenizer.type \"WhitespaceSplit\" is not implemented")]
     [InlineData("\"pre_tokenizer\": {\"type\": \"ByteLevel\", \"add_prefix_space\": true}", "pre_tokenizer.add_prefix_space true is not implemented")]
     [InlineData("\"post_processor\": {\"type\": \"TemplateProcessing\"}", "post_processor.single is missing or not a list")]
     [InlineData("\"post_processor\": {\"type\": \"RobertaProcessing\"}", "post_processor.type \"RobertaProcessing\" is not implemented")]
