@@ -56,12 +56,11 @@ internal static class ExtractScaling
                 results.Add((n, Median(seconds), Median(peaks), Median(rates)));
             }
 
-            LanguageModel opened = LanguageModel.Open(model, ModelOption.ParseWeights(weights));
+            LanguageModel opened = LanguageModel.Open(model, ModelOption.ParseWeights(weights), new ExtractionOptions().TokenBudget);
             double weightMiB = opened.WeightBytes / (1024.0 * 1024.0);
-            // The forward pass's buffers at the default token budget: residual, normed input, qkv, attention output
-            // (6·T·d floats) and the MLP's T·m, with T the budget.
+            // The engine's own estimate of the forward pass's buffers at the default token budget (the one its memory check uses).
             ModelConfig c = opened.Config;
-            double activationMiB = 4.0 * new ExtractionOptions().TokenBudget * ((6.0 * c.Width) + c.InnerWidth) / (1024.0 * 1024.0);
+            double activationMiB = LanguageModel.ActivationBytesFor(c, new ExtractionOptions().TokenBudget) / (1024.0 * 1024.0);
             CultureInfo inv = CultureInfo.InvariantCulture;
             o.WriteLine(string.Create(inv, $"assay extract, features {features}, model {Path.GetFileName(model)} ({c.Layers} layers, width {c.Width}), --weights {weights}; medians of {repeats} runs each"));
             o.WriteLine(string.Create(inv, $"parameters in memory {weightMiB:F0} MiB; forward-pass activations at the token budget ≈ {activationMiB:F0} MiB"));

@@ -8,8 +8,10 @@ namespace Assay.Benchmarks;
 
 /// <summary>
 /// The engine's packed GEMM at transformer shapes (GPT-2 small's projections for 256 and 1,024 tokens), on every kernel
-/// variant this CPU runs, with float32 and bfloat16 panels, against the FMA peak measured in the same run. Medians of the
-/// repeats. The scalar path runs once per shape, float32 only (it is the reference, not a contender).
+/// variant this CPU runs, with float32 and bfloat16 panels, and int8 panels on every integer path this CPU runs (under
+/// the widest float variant), against the FMA peak measured in the same run; each int8 row ends with its rate against
+/// float32 on the same shape and variant. Medians of the repeats. The scalar paths run once per shape, float32 and int8
+/// only (they are references, not contenders).
 /// </summary>
 internal static class GemmThroughput
 {
@@ -29,8 +31,11 @@ internal static class GemmThroughput
         var parallel = new ParallelOptions { MaxDegreeOfParallelism = threads };
         o.WriteLine(string.Create(inv, $"FMA peak (register-only Vector512 loop, {threads} threads): {peak:F1} GFLOP/s; GEMM medians of {repeats}."));
         o.WriteLine();
-        o.WriteLine("| M × K · K × N | shape | weights | variant | GFLOP/s | of the FMA peak |");
-        o.WriteLine("|---|---|---|---|---:|---:|");
+        o.WriteLine(string.Create(inv, $"Default paths: {KernelSelector.Current}, int8 {KernelSelector.CurrentInt8}."));
+        o.WriteLine();
+        o.WriteLine("| M × K · K × N | shape | weights | variant | int8 path | GFLOP/s | of the FMA peak | × float32 |");
+        o.WriteLine("|---|---|---|---|---|---:|---:|---:|");
+        KernelVariant widest = KernelSelector.Select(null).Float;
         var rng = new DeterministicRandom(11);
         WarmUp(parallel);
         foreach ((int m, int k, int n, string what) in shapes)
@@ -38,24 +43,32 @@ internal static class GemmThroughput
             float[] a = new float[m * k], b = new float[k * n], bias = new float[n], c = new float[m * n];
             rng.FillNormal(a, 1);
             rng.FillNormal(b, 0.05);
+            double float32 = double.NaN;
             foreach (WeightPrecision precision in Enum.GetValues<WeightPrecision>())
             {
                 PackedMatrix packed = PackedMatrix.FromRowMajor(b, k, n, bias, precision);
-                foreach (KernelVariant v in new[] { KernelVariant.Vector512, KernelVariant.Vector256, KernelVariant.Vector128, KernelVariant.Scalar }.Where(KernelSelector.IsSupported))
+                var runs = precision == WeightPrecision.Integer8
+                    ? Enum.GetValues<Int8Kernel>().Where(KernelSelector.IsSupported).Select(q => (widest, (Int8Kernel?)q))
+                    : new[] { KernelVariant.Vector512, KernelVariant.Vector256, KernelVariant.Vector128, KernelVariant.Scalar }
+                        .Where(v => KernelSelector.IsSupported(v) && (v != KernelVariant.Scalar || precision == WeightPrecision.Binary32))
+                        .Select(v => (v, (Int8Kernel?)null));
+                foreach ((KernelVariant v, Int8Kernel? q) in runs)
                 {
-                    if (v == KernelVariant.Scalar && precision != WeightPrecision.Binary32)
-                    {
-                        continue;
-                    }
-                    double seconds = FmaPeak.Median(v == KernelVariant.Scalar ? 1 : repeats, () => CpuKernels.Gemm(a, m, k, packed, c, n, false, v, parallel));
+                    bool reference = v == KernelVariant.Scalar || q == Int8Kernel.Scalar;
+                    double seconds = FmaPeak.Median(reference ? 1 : repeats, () => CpuKernels.Gemm(a, m, k, packed, c, n, false, v, parallel, int8: q));
                     double gflops = 2.0 * m * k * n / seconds / 1e9;
+                    if (precision == WeightPrecision.Binary32 && v == widest)
+                    {
+                        float32 = gflops;
+                    }
                     string weights = precision switch
                     {
                         WeightPrecision.BFloat16 => "bfloat16",
                         WeightPrecision.Integer8 => "int8",
                         _ => "float32",
                     };
-                    o.WriteLine(string.Create(inv, $"| {m} × {k} · {k} × {n} | {what} | {weights} | {v} | {gflops:F1} | {gflops / peak:P0} |"));
+                    string ratio = q is null ? "" : string.Create(inv, $"{gflops / float32:F2}×");
+                    o.WriteLine(string.Create(inv, $"| {m} × {k} · {k} × {n} | {what} | {weights} | {v} | {q?.ToString() ?? "–"} | {gflops:F1} | {gflops / peak:P0} | {ratio} |"));
                 }
             }
         }
@@ -75,9 +88,12 @@ internal static class GemmThroughput
             PackedMatrix b = PackedMatrix.FromRowMajor(new float[k * n], k, n, new float[n], precision);
             foreach (KernelVariant v in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
             {
-                for (int i = 0; i < 200; i++)
+                foreach (Int8Kernel q in Enum.GetValues<Int8Kernel>().Where(KernelSelector.IsSupported))
                 {
-                    CpuKernels.Gemm(a, m, k, b, c, n, i % 2 == 0, v, parallel);
+                    for (int i = 0; i < (precision == WeightPrecision.Integer8 ? 200 : 200 / 4); i++)
+                    {
+                        CpuKernels.Gemm(a, m, k, b, c, n, i % 2 == 0, v, parallel, int8: q);
+                    }
                 }
             }
         }

@@ -5,7 +5,7 @@ using Assay.Benchmarks;
 // assay-bench gemm [--repeats R] [--threads N]
 // assay-bench kernels [BenchmarkDotNet arguments]
 // assay-bench tokenize
-const string usage = "usage: assay-bench extract-scaling [--model DIR | --shape demo|gpt2-small] [--weights float32|bfloat16|int8] [--rows N] [--factor K] [--repeats R] [--features LIST]\n       assay-bench gemm [--repeats R] [--threads N]\n       assay-bench kernels [BenchmarkDotNet arguments, e.g. --filter *Gemm*]\n       assay-bench tokenize";
+const string usage = "usage: assay-bench extract-scaling [--model DIR | --shape demo|gpt2-small] [--weights auto|float32|bfloat16|int8] [--rows N] [--factor K] [--repeats R] [--features LIST]\n       assay-bench gemm [--repeats R] [--threads N]\n       assay-bench kernels [BenchmarkDotNet arguments, e.g. --filter *Gemm*]\n       assay-bench tokenize";
 if (args.Length == 1 && args[0] == "tokenize")
 {
     return TokenizeScaling.Run(Console.Out);

@@ -34,7 +34,7 @@ internal static class CrossEntropyCommand
             ExtractCommand.Positive("--stride", s0);
         }
         run ??= new ModelRun();
-        LanguageModel m = LanguageModel.Open(folder, run.Validate());
+        LanguageModel m = run.Open(folder, err ?? TextWriter.Null);
         int threads = run.Threads;
         if (stride > m.Config.ContextLength)
         {

@@ -87,7 +87,7 @@ internal static class ExtractCommand
     {
         PromptTemplate template = Prompt(q.Prompt);
         var run = new ModelRun(q.Weights, q.Threads, q.TokenBudget, q.Keep, q.LeadingSpace, q.Bos);
-        WeightPrecision weights = run.Validate();
+        _ = run.Validate();
         Positive("--commit-rows", q.CommitRows);
         if (!(q.ProgressSeconds > 0 && double.IsFinite(q.ProgressSeconds)))
         {
@@ -98,7 +98,7 @@ internal static class ExtractCommand
         TextInputReader.Check(q.Input);
 
         RunShard? shard = Shard(q.Shard, Environment.GetEnvironmentVariable, err);
-        LanguageModel model = LanguageModel.Open(q.Model, weights);
+        LanguageModel model = run.Open(q.Model, err);
         var options = new RunOptions
         {
             Extraction = run.Extraction(template, FeatureOption.Parse(q.Features, model.Config.Layers, q.Words, q.Completions)),

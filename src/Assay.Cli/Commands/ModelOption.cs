@@ -19,9 +19,11 @@ internal static class ModelOption
     /// <summary>The <c>--weights</c> option: how the model's matrices are held in memory.</summary>
     public static Option<string> CreateWeights() => new("--weights")
     {
-        Description = "Matrices in memory: float32 (the reference), bfloat16 (half the memory) or int8 (block projections in 8 bits); features drift, see README.",
-        DefaultValueFactory = _ => "float32",
+        Description = "Matrices in memory: auto (bfloat16 for a BF16 checkpoint, else float32), float32 (the reference), bfloat16 (half the memory) or int8 (block projections in 8 bits); features drift, see README.",
+        DefaultValueFactory = _ => "auto",
     };
 
-    public static WeightPrecision ParseWeights(string name) => Spellings.Parse<WeightPrecision>("--weights", name);
+    /// <summary>A --weights value: null for auto (the checkpoint decides, see <see cref="LanguageModel.AutomaticPrecision"/>).</summary>
+    public static WeightPrecision? ParseWeights(string name) =>
+        string.Equals(name, "auto", StringComparison.OrdinalIgnoreCase) ? null : Spellings.Parse<WeightPrecision>("--weights", name);
 }

@@ -22,18 +22,18 @@ internal static class NextCommand
         var shared = new SharedOptions();
         shared.AddModel(command, prompted: false);
         command.SetAction(r => CommandRunner.Run(() =>
-            Run(r.GetValue(folder)!.FullName, r.GetValue(text)!, r.GetValue(top), Console.Out, r.GetValue(json), shared.Model(r))));
+            Run(r.GetValue(folder)!.FullName, r.GetValue(text)!, r.GetValue(top), Console.Out, r.GetValue(json), shared.Model(r), Console.Error)));
         return command;
     }
 
-    internal static int Run(string folder, string text, int top, TextWriter o, bool json = false, ModelRun? run = null)
+    internal static int Run(string folder, string text, int top, TextWriter o, bool json = false, ModelRun? run = null, TextWriter? err = null)
     {
         if (top < 1)
         {
             throw new ArgumentException($"--top {top}: expected a positive number");
         }
         run ??= new ModelRun();
-        LanguageModel model = LanguageModel.Open(folder, run.Validate());
+        LanguageModel model = run.Open(folder, err ?? TextWriter.Null);
         int threads = run.Threads;
         if (top > model.Config.VocabularySize)
         {

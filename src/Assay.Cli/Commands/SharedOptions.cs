@@ -7,14 +7,14 @@ namespace Assay.Cli.Commands;
 
 /// <summary>How a command runs the model, as every model command spells it: --weights, --threads, and for
 /// commands that fill a prompt --token-budget, --keep and --no-leading-space.</summary>
-internal sealed record ModelRun(string Weights = "float32", int Threads = 0, int TokenBudget = 4096, string Keep = "head", bool LeadingSpace = true,
+internal sealed record ModelRun(string Weights = "auto", int Threads = 0, int TokenBudget = 4096, string Keep = "head", bool LeadingSpace = true,
     string Bos = "auto")
 {
     /// <summary>The --bos policy (after <see cref="Validate"/>).</summary>
     public Tokenization.BeginningOfSequence BeginningOfSequence => Spellings.Parse<Tokenization.BeginningOfSequence>("--bos", Bos);
 
-    /// <summary>Checks every value, naming its option, before anything is opened; gives the weight storage.</summary>
-    public WeightPrecision Validate()
+    /// <summary>Checks every value, naming its option, before anything is opened; gives the weight storage (null: auto).</summary>
+    public WeightPrecision? Validate()
     {
         ExtractCommand.Positive("--token-budget", TokenBudget);
         if (Threads < 0)
@@ -24,6 +24,35 @@ internal sealed record ModelRun(string Weights = "float32", int Threads = 0, int
         _ = Spellings.Parse<TextTruncation>("--keep", Keep);
         _ = BeginningOfSequence;
         return ModelOption.ParseWeights(Weights);
+    }
+
+    /// <summary>
+    /// Validates, then opens the model in the chosen storage after the memory check, and says on
+    /// <paramref name="err"/> which storage it took and why: under auto, what the checkpoint stores; for bfloat16 asked of
+    /// a float16 checkpoint, that three mantissa bits are dropped.
+    /// </summary>
+    public Model.LanguageModel Open(string folder, TextWriter err)
+    {
+        WeightPrecision? asked = Validate();
+        Model.LanguageModel model = Model.LanguageModel.Open(folder, asked, TokenBudget);
+        string storage = Assay.Spellings.Of(model.Precision);
+        if (asked is null)
+        {
+            err.WriteLine(model.Precision == WeightPrecision.BFloat16
+                ? $"assay: weights {storage} (--weights auto: every matrix of the checkpoint is stored in BF16)"
+                : $"assay: weights {storage} (--weights auto: the checkpoint is not all BF16; F16 widens to float32 exactly)");
+        }
+        else if (asked == WeightPrecision.BFloat16 && StoresFloat16(folder))
+        {
+            err.WriteLine("assay: warning: --weights bfloat16 rounds this float16 checkpoint's matrices to 7 mantissa bits from 10 (three fewer); features drift (README: weight storage); --weights auto keeps them exact in float32");
+        }
+        return model;
+    }
+
+    private static bool StoresFloat16(string folder)
+    {
+        using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
+        return checkpoint.Tensors.Any(t => t.Shape.Count >= 2 && t.DType == TensorDType.F16);
     }
 
     /// <summary>The extraction options these give (after <see cref="Validate"/>).</summary>

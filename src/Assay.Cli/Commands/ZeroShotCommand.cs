@@ -51,10 +51,10 @@ internal static class ZeroShotCommand
             ReportFolder.CheckClaimable(outFolder, overwrite);
         }
         run ??= new ModelRun();
-        Assay.Weights.WeightPrecision weights = run.Validate();
+        _ = run.Validate();
         Verbalizer v = Verbalizer.Load(verbalizerPath);
         ExtractionOptions options = run.Extraction(template, [new WordListFeature(v.AllWords, fullWords)]);
-        LanguageModel m = LanguageModel.Open(folder, weights);
+        LanguageModel m = run.Open(folder, err ?? TextWriter.Null);
         var extractor = new FeatureExtractor(m, options);
         int output = fullWords ? 1 : 0;
         var classes = new LabelIndex(v.Labels);

@@ -41,8 +41,9 @@ internal static unsafe partial class CpuKernels
 
     /// <summary>
     /// The int8 form of <see cref="Gemm"/>: A's rows quantized by <see cref="QuantizeRows"/>, B int8 per column, each
-    /// output the exact integer Σ_k (u_rk − 128)·q_kn (4-way byte dot products on the <paramref name="kernel"/> path:
-    /// AVX-VNNI, or scalar integer code with the same sums), then
+    /// output the exact integer Σ_k (u_rk − 128)·q_kn (on the <paramref name="kernel"/> path: 4-way byte dot products with
+    /// AVX-VNNI; pairs of 16-bit products with AVX2 or AVX-512BW, from A widened once to u − 128 in 16 bits and B widened
+    /// in registers; or scalar integer code with the same sums), then
     /// C = [C +] (float(sum) · s_n · t_r + bias_n) in that order. The integer sums make every path give the same bits.
     /// </summary>
     private static void GemmInt8(ReadOnlySpan<float> a, int m, int lda, PackedMatrix b, Span<float> c, int ldc,
@@ -51,6 +52,9 @@ internal static unsafe partial class CpuKernels
         int k = b.Rows, groups = b.Groups, ldq = groups * PackedMatrix.QuadDepth;
         byte[] quantized = ArrayPool<byte>.Shared.Rent(m * ldq);
         float[] rowScales = ArrayPool<float>.Shared.Rent(m);
+        kernel = KernelSelector.IsSupported(kernel) ? kernel : Int8Kernel.Scalar;
+        bool wide = kernel is Int8Kernel.Avx2 or Int8Kernel.Avx512BW;
+        short[]? widened = wide ? ArrayPool<short>.Shared.Rent(m * ldq) : null;
         try
         {
             int blocks = (m + 31) / 32;
@@ -72,12 +76,16 @@ internal static unsafe partial class CpuKernels
                     });
                 }
             }
+            if (widened is not null)
+            {
+                Centre(quantized.AsSpan(0, m * ldq), widened);
+            }
 
             int rowTiles = (m + QuadRows - 1) / QuadRows;
             int rowTasks = (rowTiles + TilesPerTask - 1) / TilesPerTask;
             int tasks = rowTasks * b.Panels;
-            bool vnni = kernel == Int8Kernel.AvxVnni && AvxVnni.IsSupported;
             fixed (byte* pq = quantized)
+            fixed (short* pw = widened)
             fixed (float* pt = rowScales)
             fixed (sbyte* pb = b.Quads)
             fixed (float* ps = b.Scales)
@@ -85,7 +93,7 @@ internal static unsafe partial class CpuKernels
             fixed (float* pbias = b.Bias)
             fixed (float* pc = c)
             {
-                var job = new QuadJob(pq, pt, m, ldq, pb, groups, b.Columns, ps, psum, pbias, pc, ldc, accumulate, vnni, rowTiles, epilogue);
+                var job = new QuadJob(pq, pw, pt, m, ldq, pb, groups, b.Columns, ps, psum, pbias, pc, ldc, accumulate, kernel, rowTiles, epilogue);
                 if ((long)m * b.Columns * k < ParallelThreshold || tasks == 1)
                 {
                     for (int i = 0; i < tasks; i++)
@@ -103,24 +111,50 @@ internal static unsafe partial class CpuKernels
         {
             ArrayPool<byte>.Shared.Return(quantized);
             ArrayPool<float>.Shared.Return(rowScales);
+            if (widened is not null)
+            {
+                ArrayPool<short>.Shared.Return(widened);
+            }
+        }
+    }
+
+    /// <summary>The quantized bytes as the signed values they stand for, u − 128, in 16 bits (the padding 128 becomes 0).</summary>
+    private static void Centre(ReadOnlySpan<byte> quantized, Span<short> widened)
+    {
+        int i = 0;
+        if (Vector256.IsHardwareAccelerated)
+        {
+            Vector256<short> offset = Vector256.Create((short)128);
+            for (; i + 32 <= quantized.Length; i += 32)
+            {
+                (Vector256<ushort> lo, Vector256<ushort> hi) = Vector256.Widen(Vector256.Create(quantized.Slice(i, 32)));
+                (lo.AsInt16() - offset).CopyTo(widened.Slice(i, 16));
+                (hi.AsInt16() - offset).CopyTo(widened.Slice(i + 16, 16));
+            }
+        }
+        for (; i < quantized.Length; i++)
+        {
+            widened[i] = (short)(quantized[i] - 128);
         }
     }
 
     private readonly struct QuadJob
     {
         private readonly byte* _a;
+        private readonly short* _wide;
         private readonly float* _rowScales, _scales, _bias, _c;
         private readonly sbyte* _b;
         private readonly int* _sums;
         private readonly int _m, _ldq, _groups, _n, _ldc, _rowTiles;
-        private readonly bool _accumulate, _vnni;
+        private readonly bool _accumulate;
+        private readonly Int8Kernel _kernel;
         private readonly Activation? _epilogue;
 
-        public QuadJob(byte* a, float* rowScales, int m, int ldq, sbyte* b, int groups, int n, float* scales, int* sums,
-            float* bias, float* c, int ldc, bool accumulate, bool vnni, int rowTiles, Activation? epilogue)
+        public QuadJob(byte* a, short* wide, float* rowScales, int m, int ldq, sbyte* b, int groups, int n, float* scales, int* sums,
+            float* bias, float* c, int ldc, bool accumulate, Int8Kernel kernel, int rowTiles, Activation? epilogue)
         {
-            _a = a; _rowScales = rowScales; _m = m; _ldq = ldq; _b = b; _groups = groups; _n = n; _scales = scales;
-            _sums = sums; _bias = bias; _c = c; _ldc = ldc; _accumulate = accumulate; _vnni = vnni; _rowTiles = rowTiles;
+            _a = a; _wide = wide; _rowScales = rowScales; _m = m; _ldq = ldq; _b = b; _groups = groups; _n = n; _scales = scales;
+            _sums = sums; _bias = bias; _c = c; _ldc = ldc; _accumulate = accumulate; _kernel = kernel; _rowTiles = rowTiles;
             _epilogue = epilogue;
         }
 
@@ -131,6 +165,7 @@ internal static unsafe partial class CpuKernels
             int firstTile = rowTask * TilesPerTask;
             int lastTile = Math.Min(_rowTiles, firstTile + TilesPerTask);
             byte** rows = stackalloc byte*[QuadRows];
+            short** wideRows = stackalloc short*[QuadRows];
             int* sums = stackalloc int[QuadRows * QuadColumns];
             for (int tile = firstTile; tile < lastTile; tile++)
             {
@@ -139,7 +174,9 @@ internal static unsafe partial class CpuKernels
                 for (int r = 0; r < QuadRows; r++)
                 {
                     // Rows past M repeat the tile's first row; their sums are dropped.
-                    rows[r] = _a + ((long)(r0 + (r < count ? r : 0)) * _ldq);
+                    long at = (long)(r0 + (r < count ? r : 0)) * _ldq;
+                    rows[r] = _a + at;
+                    wideRows[r] = _wide + at;
                 }
                 for (int block = 0; block < W / QuadColumns; block++)
                 {
@@ -149,22 +186,32 @@ internal static unsafe partial class CpuKernels
                         break;
                     }
                     sbyte* bp = panelBase + (block * QuadColumns * D);
-                    if (_vnni)
+                    switch (_kernel)
                     {
-                        MicroVnni(rows, bp, _groups, sums);
-                    }
-                    else
-                    {
-                        MicroQuadScalar(rows, bp, _groups, sums);
+                        case Int8Kernel.AvxVnni:
+                            MicroVnni(rows, bp, _groups, sums);
+                            break;
+                        case Int8Kernel.Avx512BW:
+                            MicroPairs512(wideRows, bp, _groups, sums);
+                            break;
+                        case Int8Kernel.Avx2:
+                            MicroPairs256(wideRows, bp, _groups, sums, 0);
+                            MicroPairs256(wideRows, bp, _groups, sums, 8);
+                            break;
+                        default:
+                            MicroQuadScalar(rows, bp, _groups, sums);
+                            break;
                     }
                     int width = Math.Min(QuadColumns, _n - n0);
+                    // The byte paths sum u·q = (u − 128)·q + 128·q; the 16-bit paths sum (u − 128)·q already.
+                    int offset = _wide == null ? 128 : 0;
                     for (int r = 0; r < count; r++)
                     {
                         float t = _rowScales[r0 + r];
                         float* cRow = _c + ((long)(r0 + r) * _ldc) + n0;
                         for (int j = 0; j < width; j++)
                         {
-                            float v = sums[(r * QuadColumns) + j] - (128 * _sums[n0 + j]);
+                            float v = sums[(r * QuadColumns) + j] - (offset * _sums[n0 + j]);
                             v *= _scales[n0 + j];
                             v *= t;
                             v += _bias == null ? 0f : _bias[n0 + j];
@@ -234,5 +281,95 @@ internal static unsafe partial class CpuKernels
         x00.Store(sums); x01.Store(sums + 8); x10.Store(sums + 16); x11.Store(sums + 24);
         x20.Store(sums + 32); x21.Store(sums + 40); x30.Store(sums + 48); x31.Store(sums + 56);
         x40.Store(sums + 64); x41.Store(sums + 72); x50.Store(sums + 80); x51.Store(sums + 88);
+    }
+
+    /// <summary>
+    /// The same sums with AVX-512BW: per group of four k, each row's four 16-bit values broadcast, each column's four
+    /// bytes widened in place (vpmovsxbw), and vpmaddwd adds the products in pairs, so each 32-bit lane holds a column's
+    /// k0·k1 or k2·k3 half; the two halves are added at the end. |u − 128|, |q| ≤ 127, so nothing saturates or overflows
+    /// (a lane grows by at most 32,258 per group; K ≤ 266,000 stays inside int32).
+    /// </summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    private static void MicroPairs512(short** rows, sbyte* bp, int groups, int* sums)
+    {
+        const int Stride = PackedMatrix.PanelWidth * PackedMatrix.QuadDepth;
+        short* a0 = rows[0], a1 = rows[1], a2 = rows[2], a3 = rows[3], a4 = rows[4], a5 = rows[5];
+        Vector512<int> x00 = default, x01 = default, x10 = default, x11 = default, x20 = default, x21 = default;
+        Vector512<int> x30 = default, x31 = default, x40 = default, x41 = default, x50 = default, x51 = default;
+        for (int g = 0; g < groups; g++)
+        {
+            sbyte* q = bp + ((long)g * Stride);
+            Vector512<short> b0 = Avx512BW.ConvertToVector512Int16(Vector256.Load(q));
+            Vector512<short> b1 = Avx512BW.ConvertToVector512Int16(Vector256.Load(q + 32));
+            int o = g * PackedMatrix.QuadDepth;
+            Vector512<short> v = Vector512.Create(Unsafe.ReadUnaligned<long>(a0 + o)).AsInt16();
+            x00 += Avx512BW.MultiplyAddAdjacent(v, b0); x01 += Avx512BW.MultiplyAddAdjacent(v, b1);
+            v = Vector512.Create(Unsafe.ReadUnaligned<long>(a1 + o)).AsInt16();
+            x10 += Avx512BW.MultiplyAddAdjacent(v, b0); x11 += Avx512BW.MultiplyAddAdjacent(v, b1);
+            v = Vector512.Create(Unsafe.ReadUnaligned<long>(a2 + o)).AsInt16();
+            x20 += Avx512BW.MultiplyAddAdjacent(v, b0); x21 += Avx512BW.MultiplyAddAdjacent(v, b1);
+            v = Vector512.Create(Unsafe.ReadUnaligned<long>(a3 + o)).AsInt16();
+            x30 += Avx512BW.MultiplyAddAdjacent(v, b0); x31 += Avx512BW.MultiplyAddAdjacent(v, b1);
+            v = Vector512.Create(Unsafe.ReadUnaligned<long>(a4 + o)).AsInt16();
+            x40 += Avx512BW.MultiplyAddAdjacent(v, b0); x41 += Avx512BW.MultiplyAddAdjacent(v, b1);
+            v = Vector512.Create(Unsafe.ReadUnaligned<long>(a5 + o)).AsInt16();
+            x50 += Avx512BW.MultiplyAddAdjacent(v, b0); x51 += Avx512BW.MultiplyAddAdjacent(v, b1);
+        }
+        Halves(x00, x01, sums); Halves(x10, x11, sums + 16); Halves(x20, x21, sums + 32);
+        Halves(x30, x31, sums + 48); Halves(x40, x41, sums + 64); Halves(x50, x51, sums + 80);
+    }
+
+    /// <summary>Sixteen column sums from two vectors of (k0·k1, k2·k3) halves: lanes 2j and 2j + 1 added.</summary>
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    private static void Halves(Vector512<int> low, Vector512<int> high, int* into)
+    {
+        Vector512<int> even = Vector512.Create(0, 2, 4, 6, 8, 10, 12, 14, 16, 18, 20, 22, 24, 26, 28, 30);
+        Vector512<int> odd = even + Vector512<int>.One;
+        (Avx512F.PermuteVar16x32x2(low, even, high) + Avx512F.PermuteVar16x32x2(low, odd, high)).Store(into);
+    }
+
+    /// <summary>
+    /// <see cref="MicroPairs512"/> at 256 bits (AVX2), for the eight columns from <paramref name="first"/> of the 16:
+    /// 12 accumulators, two widened column vectors and a broadcast fit the 16 registers.
+    /// </summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    private static void MicroPairs256(short** rows, sbyte* bp, int groups, int* sums, int first)
+    {
+        const int Stride = PackedMatrix.PanelWidth * PackedMatrix.QuadDepth;
+        short* a0 = rows[0], a1 = rows[1], a2 = rows[2], a3 = rows[3], a4 = rows[4], a5 = rows[5];
+        Vector256<int> x00 = default, x01 = default, x10 = default, x11 = default, x20 = default, x21 = default;
+        Vector256<int> x30 = default, x31 = default, x40 = default, x41 = default, x50 = default, x51 = default;
+        bp += first * PackedMatrix.QuadDepth;
+        for (int g = 0; g < groups; g++)
+        {
+            sbyte* q = bp + ((long)g * Stride);
+            Vector256<short> b0 = Avx2.ConvertToVector256Int16(Vector128.Load(q));
+            Vector256<short> b1 = Avx2.ConvertToVector256Int16(Vector128.Load(q + 16));
+            int o = g * PackedMatrix.QuadDepth;
+            Vector256<short> v = Vector256.Create(Unsafe.ReadUnaligned<long>(a0 + o)).AsInt16();
+            x00 += Avx2.MultiplyAddAdjacent(v, b0); x01 += Avx2.MultiplyAddAdjacent(v, b1);
+            v = Vector256.Create(Unsafe.ReadUnaligned<long>(a1 + o)).AsInt16();
+            x10 += Avx2.MultiplyAddAdjacent(v, b0); x11 += Avx2.MultiplyAddAdjacent(v, b1);
+            v = Vector256.Create(Unsafe.ReadUnaligned<long>(a2 + o)).AsInt16();
+            x20 += Avx2.MultiplyAddAdjacent(v, b0); x21 += Avx2.MultiplyAddAdjacent(v, b1);
+            v = Vector256.Create(Unsafe.ReadUnaligned<long>(a3 + o)).AsInt16();
+            x30 += Avx2.MultiplyAddAdjacent(v, b0); x31 += Avx2.MultiplyAddAdjacent(v, b1);
+            v = Vector256.Create(Unsafe.ReadUnaligned<long>(a4 + o)).AsInt16();
+            x40 += Avx2.MultiplyAddAdjacent(v, b0); x41 += Avx2.MultiplyAddAdjacent(v, b1);
+            v = Vector256.Create(Unsafe.ReadUnaligned<long>(a5 + o)).AsInt16();
+            x50 += Avx2.MultiplyAddAdjacent(v, b0); x51 += Avx2.MultiplyAddAdjacent(v, b1);
+        }
+        sums += first;
+        Halves(x00, x01, sums); Halves(x10, x11, sums + 16); Halves(x20, x21, sums + 32);
+        Halves(x30, x31, sums + 48); Halves(x40, x41, sums + 64); Halves(x50, x51, sums + 80);
+    }
+
+    /// <summary>Eight column sums from two vectors of (k0·k1, k2·k3) halves: vphaddd adds adjacent lanes within each 128-bit half, and a cross-lane permute puts the columns in order.</summary>
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    private static void Halves(Vector256<int> low, Vector256<int> high, int* into)
+    {
+        // hadd: [l0+l1, l2+l3, h0+h1, h2+h3 | l4+l5, l6+l7, h4+h5, h6+h7] = columns [0 1 4 5 | 2 3 6 7].
+        Vector256<int> added = Avx2.HorizontalAdd(low, high);
+        Avx2.PermuteVar8x32(added, Vector256.Create(0, 1, 4, 5, 2, 3, 6, 7)).Store(into);
     }
 }

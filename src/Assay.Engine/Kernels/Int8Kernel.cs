@@ -8,4 +8,13 @@ public enum Int8Kernel
 
     /// <summary>AVX-VNNI 4-way byte dot products (vpdpbusd) on 256-bit vectors.</summary>
     AvxVnni,
+
+    /// <summary>
+    /// AVX2 on 256-bit vectors: the bytes widened to 16 bits (vpmovsxbw) and multiplied in adjacent pairs into 32-bit
+    /// sums (vpmaddwd), which never saturates, unlike the byte form vpmaddubsw.
+    /// </summary>
+    Avx2,
+
+    /// <summary>The <see cref="Avx2"/> path at 512 bits (AVX-512BW).</summary>
+    Avx512BW,
 }

@@ -56,6 +56,114 @@ public sealed class LanguageModel
         return CheckpointLayout.For(config).WeightBytes(config, precision);
     }
 
+    /// <summary>
+    /// The storage <c>--weights auto</c> takes for a checkpoint: bfloat16 when every stored matrix parameter of the
+    /// config's family (buffers aside) is BF16, which then loses nothing; float32 otherwise (F32, and F16, which widens
+    /// to float32 exactly).
+    /// </summary>
+    public static WeightPrecision AutomaticPrecision(SafetensorsCheckpoint checkpoint, ModelConfig config)
+    {
+        ArgumentNullException.ThrowIfNull(checkpoint);
+        ArgumentNullException.ThrowIfNull(config);
+        var names = CheckpointLayout.For(config).ExpectedParameters(config).Where(p => p.Shape.Length >= 2).Select(p => p.Name).ToHashSet(StringComparer.Ordinal);
+        // A stored name is the parameter's, or it behind a prefix (transformer., model.).
+        bool IsMatrix(string name)
+        {
+            for (int at = -1; ; at = name.IndexOf('.', at + 1))
+            {
+                if (names.Contains(name[(at + 1)..]))
+                {
+                    return true;
+                }
+                if (name.IndexOf('.', at + 1) < 0)
+                {
+                    return false;
+                }
+            }
+        }
+        var matrices = checkpoint.Tensors.Where(t => IsMatrix(t.Name)).ToList();
+        return matrices.Count > 0 && matrices.All(t => t.DType == TensorDType.BF16) ? WeightPrecision.BFloat16 : WeightPrecision.Binary32;
+    }
+
+    /// <summary>
+    /// An estimate of the memory one forward pass over <paramref name="tokenBudget"/> tokens takes beyond the weights:
+    /// the residual stream and its normed copy, q/k/v, the attention output, the MLP's inner activations (twice, for the
+    /// gate) and the parallel residual's input, doubled for the buffer pool's rounding up to powers of two; plus logits
+    /// at every position (what cross-entropy asks for, the most any command does).
+    /// </summary>
+    public static long ActivationBytesFor(ModelConfig config, int tokenBudget)
+    {
+        ArgumentNullException.ThrowIfNull(config);
+        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(tokenBudget);
+        long q = (long)config.Heads * config.HeadWidth, kv = (long)config.KeyValueHeads * config.HeadWidth;
+        long perToken = (3L * config.Width) + q + (2 * kv) + q + ((config.GatedMlp ? 2L : 1L) * config.InnerWidth);
+        return (2 * sizeof(float) * tokenBudget * perToken) + ((long)sizeof(float) * tokenBudget * config.VocabularySize);
+    }
+
+    /// <summary>
+    /// The memory this process can still take: the kernel's MemAvailable (Linux), bounded by the runtime's view of the
+    /// container or job limit less what the process already holds; null where neither is known.
+    /// </summary>
+    public static long? AvailableMemoryBytes()
+    {
+        long? available = null;
+        try
+        {
+            foreach (string line in File.ReadLines("/proc/meminfo"))
+            {
+                if (line.StartsWith("MemAvailable:", StringComparison.Ordinal)
+                    && long.TryParse(line["MemAvailable:".Length..].Replace("kB", "", StringComparison.Ordinal).Trim(), NumberStyles.None, CultureInfo.InvariantCulture, out long kb))
+                {
+                    available = kb * 1024;
+                    break;
+                }
+            }
+        }
+        catch (IOException)
+        {
+        }
+        catch (UnauthorizedAccessException)
+        {
+        }
+        long limit = GC.GetGCMemoryInfo().TotalAvailableMemoryBytes - Environment.WorkingSet;
+        return limit > 0 ? Math.Min(available ?? limit, limit) : available;
+    }
+
+    /// <summary>
+    /// Opens a checkpoint folder in <paramref name="precision"/> (null: <see cref="AutomaticPrecision"/>) after checking
+    /// that its weights plus the activations of <paramref name="tokenBudget"/> tokens fit in the available memory.
+    /// </summary>
+    /// <exception cref="ModelMemoryException">The estimate exceeds the available memory; nothing was loaded.</exception>
+    /// <inheritdoc cref="Open(string)"/>
+    public static LanguageModel Open(string folder, WeightPrecision? precision, int tokenBudget) =>
+        Open(folder, precision, tokenBudget, AvailableMemoryBytes());
+
+    internal static LanguageModel Open(string folder, WeightPrecision? precision, int tokenBudget, long? availableBytes)
+    {
+        ArgumentNullException.ThrowIfNull(folder);
+        if (!Directory.Exists(folder))
+        {
+            throw new DirectoryNotFoundException($"{folder}: no such model folder");
+        }
+        string configPath = Path.Combine(folder, ModelConfig.FileName);
+        ModelConfig config = ModelConfig.Load(configPath);
+        WeightPrecision chosen;
+        using (SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder))
+        {
+            chosen = precision ?? AutomaticPrecision(checkpoint, config);
+        }
+        long weights = WeightBytesFor(config, chosen), activations = ActivationBytesFor(config, tokenBudget);
+        if (availableBytes is long available && weights + activations > available)
+        {
+            static string GiB(long bytes) => string.Create(CultureInfo.InvariantCulture, $"{bytes / (double)(1L << 30):F2} GiB");
+            throw new ModelMemoryException(configPath,
+                $"{folder} in {Spellings.Of(chosen)} needs an estimated {GiB(weights + activations)} (weights {GiB(weights)}, activations for {tokenBudget:N0} tokens {GiB(activations)}), "
+                + $"but this machine has {GiB(available)} available; choose a smaller --weights storage or --token-budget, or free memory",
+                weights + activations, available);
+        }
+        return Open(folder, chosen);
+    }
+
     /// <summary>Opens a checkpoint folder: reads and validates config.json, the tokenizer and every tensor.</summary>
     /// <exception cref="ModelConfigException">config.json is missing, malformed or unsupported.</exception>
     /// <exception cref="WeightsFormatException">The weights are malformed or do not match the config.</exception>

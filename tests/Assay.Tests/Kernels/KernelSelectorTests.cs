@@ -10,8 +10,11 @@ public sealed class KernelSelectorTests
         KernelVariant expected = KernelSelector.IsSupported(KernelVariant.Vector512) ? KernelVariant.Vector512
             : KernelSelector.IsSupported(KernelVariant.Vector256) ? KernelVariant.Vector256
             : KernelSelector.IsSupported(KernelVariant.Vector128) ? KernelVariant.Vector128 : KernelVariant.Scalar;
-        Int8Kernel int8 = expected >= KernelVariant.Vector256 && System.Runtime.Intrinsics.X86.AvxVnni.IsSupported
-            ? Int8Kernel.AvxVnni : Int8Kernel.Scalar;
+        // The fastest integer path the CPU has, never scalar where a vector one exists (the fallback that once hid).
+        Int8Kernel int8 = expected < KernelVariant.Vector256 ? Int8Kernel.Scalar
+            : System.Runtime.Intrinsics.X86.AvxVnni.IsSupported ? Int8Kernel.AvxVnni
+            : expected == KernelVariant.Vector512 && System.Runtime.Intrinsics.X86.Avx512BW.IsSupported ? Int8Kernel.Avx512BW
+            : System.Runtime.Intrinsics.X86.Avx2.IsSupported ? Int8Kernel.Avx2 : Int8Kernel.Scalar;
         Assert.Equal((expected, int8), KernelSelector.Select(null));
     }
 
@@ -38,6 +41,14 @@ public sealed class KernelSelectorTests
     {
         KernelVariant widest = KernelSelector.Select(null).Float;
         Assert.Equal((widest, Int8Kernel.Scalar), KernelSelector.Select(widest + ":scalar"));
+        if (KernelSelector.IsSupported(Int8Kernel.Avx2))
+        {
+            Assert.Equal((KernelVariant.Scalar, Int8Kernel.Avx2), KernelSelector.Select("scalar:avx2"));
+        }
+        if (KernelSelector.IsSupported(Int8Kernel.Avx512BW))
+        {
+            Assert.Equal((KernelVariant.Vector256, Int8Kernel.Avx512BW), KernelSelector.Select("vector256:AVX512BW"));
+        }
         if (KernelSelector.IsSupported(Int8Kernel.AvxVnni))
         {
             Assert.Equal((KernelVariant.Scalar, Int8Kernel.AvxVnni), KernelSelector.Select("scalar:avxvnni"));
