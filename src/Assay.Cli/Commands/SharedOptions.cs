@@ -28,23 +28,30 @@ internal sealed record ModelRun(string Weights = "auto", int Threads = 0, int To
 
     /// <summary>
     /// Validates, then opens the model in the chosen storage after the memory check, and says on
-    /// <paramref name="err"/> which storage it took and why: under auto, what the checkpoint stores; for bfloat16 asked of
-    /// a float16 checkpoint, that three mantissa bits are dropped.
+    /// <paramref name="err"/> when the storage is not the float32 reference by the user's word: auto keeping a BF16
+    /// checkpoint in bfloat16, or bfloat16 asked of a float16 checkpoint, which drops three mantissa bits.
     /// </summary>
     public Model.LanguageModel Open(string folder, TextWriter err)
     {
         WeightPrecision? asked = Validate();
         Model.LanguageModel model = Model.LanguageModel.Open(folder, asked, TokenBudget);
         string storage = Assay.Spellings.Of(model.Precision);
-        if (asked is null)
+        if (asked is null && model.Precision == WeightPrecision.BFloat16)
         {
-            err.WriteLine(model.Precision == WeightPrecision.BFloat16
-                ? $"assay: weights {storage} (--weights auto: every matrix of the checkpoint is stored in BF16)"
-                : $"assay: weights {storage} (--weights auto: the checkpoint is not all BF16; F16 widens to float32 exactly)");
+            // Said only when auto leaves the float32 reference (exactly: the matrices are BF16 to begin with); record.json names the storage either way.
+            err.WriteLine($"assay: weights {storage} (--weights auto: every matrix of the checkpoint is stored in BF16, which loses nothing)");
         }
         else if (asked == WeightPrecision.BFloat16 && StoresFloat16(folder))
         {
             err.WriteLine("assay: warning: --weights bfloat16 rounds this float16 checkpoint's matrices to 7 mantissa bits from 10 (three fewer); features drift (README: weight storage); --weights auto keeps them exact in float32");
+        }
+        if (model.Precision == WeightPrecision.Integer8)
+        {
+            // The integer path is named so a slow fallback never hides (record.json has it as int8_kernels).
+            Kernels.Int8Kernel path = Model.LanguageModel.Int8Kernels;
+            err.WriteLine(path == Kernels.Int8Kernel.Scalar
+                ? "assay: warning: int8 products run on the scalar path (no vector integer path on this CPU or under ASSAY_KERNELS): expect it tens of times slower than float32"
+                : $"assay: int8 products on the {path} path");
         }
         return model;
     }

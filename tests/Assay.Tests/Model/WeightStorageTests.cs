@@ -94,9 +94,22 @@ public sealed class WeightStorageTests : IDisposable
             Model = Checkpoints.Folder(FeatureExtractorTests.Spec with { DType = "BF16" }),
         };
         Assert.Equal(0, ExtractCommand.Run(request, TextWriter.Null, err, CancellationToken.None));
-        Assert.Contains("assay: weights bfloat16 (--weights auto: every matrix of the checkpoint is stored in BF16)", err.ToString(), StringComparison.Ordinal);
+        Assert.Contains("assay: weights bfloat16 (--weights auto: every matrix of the checkpoint is stored in BF16, which loses nothing)", err.ToString(), StringComparison.Ordinal);
         using JsonDocument record = JsonDocument.Parse(File.ReadAllText(_temp.File("run/record.json")));
         Assert.Equal("bfloat16", record.RootElement.GetProperty("settings").GetProperty("model").GetProperty("weights").GetString());
+    }
+
+    [Fact]
+    public void Int8_names_its_integer_path_on_stderr()
+    {
+        string input = Output.ExtractionRunTests.WriteInput(_temp, 4);
+        var err = new StringWriter();
+        var request = ExtractCommandTests.Request(input, _temp.File("run"), "cmean", weights: "int8");
+        Assert.Equal(0, ExtractCommand.Run(request, TextWriter.Null, err, CancellationToken.None));
+        Assert.Contains(LanguageModel.Int8Kernels == Assay.Kernels.Int8Kernel.Scalar ? "int8 products run on the scalar path" : $"int8 products on the {LanguageModel.Int8Kernels} path",
+            err.ToString(), StringComparison.Ordinal);
+        using JsonDocument record = JsonDocument.Parse(File.ReadAllText(_temp.File("run/record.json")));
+        Assert.Equal(LanguageModel.Int8Kernels.ToString(), record.RootElement.GetProperty("settings").GetProperty("int8_kernels").GetString());
     }
 
     [Fact]
