@@ -61,6 +61,10 @@ internal static unsafe partial class CpuKernels
             if (blocks <= 1 || (long)m * k < ParallelThreshold)
             {
                 QuantizeRows(a, m, k, lda, quantized, rowScales);
+                if (widened is not null)
+                {
+                    Centre(quantized.AsSpan(0, m * ldq), widened);
+                }
             }
             else
             {
@@ -73,12 +77,12 @@ internal static unsafe partial class CpuKernels
                         int r0 = i * 32, rows = Math.Min(32, m - r0);
                         var span = new ReadOnlySpan<float>(source + ((long)r0 * lda), (int)Math.Min(length - ((long)r0 * lda), (long)rows * lda));
                         QuantizeRows(span, rows, k, lda, quantized.AsSpan(r0 * ldq, rows * ldq), rowScales.AsSpan(r0, rows));
+                        if (widened is not null)
+                        {
+                            Centre(quantized.AsSpan(r0 * ldq, rows * ldq), widened.AsSpan(r0 * ldq, rows * ldq));
+                        }
                     });
                 }
-            }
-            if (widened is not null)
-            {
-                Centre(quantized.AsSpan(0, m * ldq), widened);
             }
 
             int rowTiles = (m + QuadRows - 1) / QuadRows;
