@@ -213,9 +213,23 @@ internal static unsafe partial class CpuKernels
                     {
                         float t = _rowScales[r0 + r];
                         float* cRow = _c + ((long)(r0 + r) * _ldc) + n0;
-                        for (int j = 0; j < width; j++)
+                        int* rowSums = sums + (r * QuadColumns);
+                        int j = 0;
+                        if (Vector256.IsHardwareAccelerated)
                         {
-                            float v = sums[(r * QuadColumns) + j] - (offset * _sums[n0 + j]);
+                            // Eight columns at a time, the scalar loop's operations in its order (no fused multiply-add), so the same bits.
+                            for (; j + 8 <= width; j += 8)
+                            {
+                                Vector256<float> v = Vector256.ConvertToSingle(Vector256.Load(rowSums + j) - (Vector256.Load(_sums + n0 + j) * offset));
+                                v *= Vector256.Load(_scales + n0 + j);
+                                v *= t;
+                                v += _bias == null ? Vector256<float>.Zero : Vector256.Load(_bias + n0 + j);
+                                (_accumulate ? Vector256.Load(cRow + j) + v : v).Store(cRow + j);
+                            }
+                        }
+                        for (; j < width; j++)
+                        {
+                            float v = rowSums[j] - (offset * _sums[n0 + j]);
                             v *= _scales[n0 + j];
                             v *= t;
                             v += _bias == null ? 0f : _bias[n0 + j];
