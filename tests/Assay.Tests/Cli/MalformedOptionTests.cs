@@ -59,6 +59,9 @@ public sealed class MalformedOptionTests(MalformedOptionFixture f) : IClassFixtu
         { "extract {I} --model {M} --out ''", "--out \"\": expected a folder path" },
         { "extract {I} --model {M} --out {T} --token-budget abc", "--token-budget abc: expected a whole number" },
         { "extract {I} --model {M} --out {T} --token-budget 0", "--token-budget 0: expected a positive number" },
+        // A run whose estimate cannot fit (a billion-token budget: terabytes of activations) is refused before loading.
+        { "extract {I} --model {M} --out {T} --token-budget 1000000000", "activations for 1,000,000,000 tokens" },
+        { "zero-shot {P} --model {M} --verbalizer {V} --prompt '{text} is' --token-budget 1000000000", "available; choose a smaller --weights storage or --token-budget" },
         { "extract {I} --model {M} --out {T} --commit-rows -3", "--commit-rows -3: expected a positive number" },
         { "extract {I} --model {M} --out {T} --threads -1", "--threads -1: expected 0 (all cores) or a positive count" },
         { "extract {I} --model {M} --out {T} --progress-seconds 0", "--progress-seconds 0: expected a positive number of seconds" },
