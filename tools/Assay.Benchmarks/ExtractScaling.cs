@@ -62,6 +62,7 @@ internal static class ExtractScaling
             ModelConfig c = opened.Config;
             double activationMiB = LanguageModel.ActivationBytesFor(c, new ExtractionOptions().TokenBudget) / (1024.0 * 1024.0);
             CultureInfo inv = CultureInfo.InvariantCulture;
+            o.WriteLine(Machine.Describe() + " (the extract processes inherit ASSAY_KERNELS, so they take the same)");
             o.WriteLine(string.Create(inv, $"assay extract, features {features}, model {Path.GetFileName(model)} ({c.Layers} layers, width {c.Width}), --weights {weights}; medians of {repeats} runs each"));
             o.WriteLine(string.Create(inv, $"parameters in memory {weightMiB:F0} MiB; forward-pass activations at the token budget ≈ {activationMiB:F0} MiB"));
             o.WriteLine();

@@ -31,7 +31,7 @@ internal static class GemmThroughput
         var parallel = new ParallelOptions { MaxDegreeOfParallelism = threads };
         o.WriteLine(string.Create(inv, $"FMA peak (register-only Vector512 loop, {threads} threads): {peak:F1} GFLOP/s; GEMM medians of {repeats}."));
         o.WriteLine();
-        o.WriteLine(string.Create(inv, $"Default paths: {KernelSelector.Current}, int8 {KernelSelector.CurrentInt8}."));
+        o.WriteLine(Machine.Describe() + " (the defaults; each row names the path it ran).");
         o.WriteLine();
         o.WriteLine("| M × K · K × N | shape | weights | variant | int8 path | GFLOP/s | of the FMA peak | × float32 |");
         o.WriteLine("|---|---|---|---|---|---:|---:|---:|");

@@ -14,10 +14,7 @@ internal static class TokenizeScaling
     public static int Run(TextWriter o)
     {
         CultureInfo inv = CultureInfo.InvariantCulture;
-        string cpu = File.Exists("/proc/cpuinfo")
-            ? File.ReadLines("/proc/cpuinfo").FirstOrDefault(l => l.StartsWith("model name", StringComparison.Ordinal))?.Split(':', 2)[1].Trim() ?? "unknown"
-            : "unknown";
-        o.WriteLine($"CPU: {cpu}, {Environment.ProcessorCount} cores; one thread; medians of 3");
+        o.WriteLine($"CPU: {Machine.Cpu}, {Environment.ProcessorCount} cores; one thread; medians of 3");
         o.WriteLine();
         o.WriteLine("| line (KiB) | engine (s) | engine ns/char | one library call (s) | one call / engine |");
         o.WriteLine("|---:|---:|---:|---:|---:|");

@@ -41,7 +41,7 @@ internal sealed record ModelRun(string Weights = "auto", int Threads = 0, int To
             // Said only when auto leaves the float32 reference (exactly: the matrices are BF16 to begin with); record.json names the storage either way.
             err.WriteLine($"assay: weights {storage} (--weights auto: every matrix of the checkpoint is stored in BF16, which loses nothing)");
         }
-        else if (asked == WeightPrecision.BFloat16 && StoresFloat16(folder))
+        else if (asked == WeightPrecision.BFloat16 && StoresFloat16(folder, model.Config))
         {
             err.WriteLine("assay: warning: --weights bfloat16 rounds this float16 checkpoint's matrices to 7 mantissa bits from 10 (three fewer); features drift (README: weight storage); --weights auto keeps them exact in float32");
         }
@@ -56,10 +56,10 @@ internal sealed record ModelRun(string Weights = "auto", int Threads = 0, int To
         return model;
     }
 
-    private static bool StoresFloat16(string folder)
+    private static bool StoresFloat16(string folder, Config.ModelConfig config)
     {
         using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
-        return checkpoint.Tensors.Any(t => t.Shape.Count >= 2 && t.DType == TensorDType.F16);
+        return Model.LanguageModel.MatrixTypes(checkpoint, config).Contains(TensorDType.F16);
     }
 
     /// <summary>The extraction options these give (after <see cref="Validate"/>).</summary>

@@ -52,7 +52,11 @@ internal static unsafe partial class CpuKernels
         int k = b.Rows, groups = b.Groups, ldq = groups * PackedMatrix.QuadDepth;
         byte[] quantized = ArrayPool<byte>.Shared.Rent(m * ldq);
         float[] rowScales = ArrayPool<float>.Shared.Rent(m);
-        kernel = KernelSelector.IsSupported(kernel) ? kernel : Int8Kernel.Scalar;
+        if (!KernelSelector.IsSupported(kernel))
+        {
+            // Never a silent slow path: the selector refuses such a setting before any command runs.
+            throw new ArgumentException($"this CPU does not have the int8 path {kernel}", nameof(kernel));
+        }
         bool wide = kernel is Int8Kernel.Avx2 or Int8Kernel.Avx512BW;
         short[]? widened = wide ? ArrayPool<short>.Shared.Rent(m * ldq) : null;
         try

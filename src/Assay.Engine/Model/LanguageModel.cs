@@ -57,33 +57,38 @@ public sealed class LanguageModel
     }
 
     /// <summary>
-    /// The storage <c>--weights auto</c> takes for a checkpoint: bfloat16 when every stored matrix parameter of the
-    /// config's family (buffers aside) is BF16, which then loses nothing; float32 otherwise (F32, and F16, which widens
-    /// to float32 exactly).
+    /// The dtypes the checkpoint stores its matrix parameters in (every parameter of two or more dimensions the config's
+    /// family names, found under any prefix such as transformer. or model.; buffers aside).
     /// </summary>
-    public static WeightPrecision AutomaticPrecision(SafetensorsCheckpoint checkpoint, ModelConfig config)
+    public static IReadOnlySet<TensorDType> MatrixTypes(SafetensorsCheckpoint checkpoint, ModelConfig config)
     {
         ArgumentNullException.ThrowIfNull(checkpoint);
         ArgumentNullException.ThrowIfNull(config);
         var names = CheckpointLayout.For(config).ExpectedParameters(config).Where(p => p.Shape.Length >= 2).Select(p => p.Name).ToHashSet(StringComparer.Ordinal);
-        // A stored name is the parameter's, or it behind a prefix (transformer., model.).
         bool IsMatrix(string name)
         {
-            for (int at = -1; ; at = name.IndexOf('.', at + 1))
+            for (string rest = name; ; rest = rest[(rest.IndexOf('.', StringComparison.Ordinal) + 1)..])
             {
-                if (names.Contains(name[(at + 1)..]))
+                if (names.Contains(rest))
                 {
                     return true;
                 }
-                if (name.IndexOf('.', at + 1) < 0)
+                if (!rest.Contains('.', StringComparison.Ordinal))
                 {
                     return false;
                 }
             }
         }
-        var matrices = checkpoint.Tensors.Where(t => IsMatrix(t.Name)).ToList();
-        return matrices.Count > 0 && matrices.All(t => t.DType == TensorDType.BF16) ? WeightPrecision.BFloat16 : WeightPrecision.Binary32;
+        return checkpoint.Tensors.Where(t => IsMatrix(t.Name)).Select(t => t.DType).ToHashSet();
     }
+
+    /// <summary>
+    /// The storage <c>--weights auto</c> takes for a checkpoint: bfloat16 when every matrix parameter
+    /// (<see cref="MatrixTypes"/>) is BF16, which then loses nothing; float32 otherwise (F32, and F16, which widens to
+    /// float32 exactly).
+    /// </summary>
+    public static WeightPrecision AutomaticPrecision(SafetensorsCheckpoint checkpoint, ModelConfig config) =>
+        MatrixTypes(checkpoint, config).SetEquals([TensorDType.BF16]) ? WeightPrecision.BFloat16 : WeightPrecision.Binary32;
 
     /// <summary>
     /// An estimate of the memory one forward pass over <paramref name="tokenBudget"/> tokens takes beyond the weights:

@@ -57,6 +57,10 @@ public sealed class KernelSelectorTests
         {
             var e = Assert.Throws<InvalidOperationException>(() => KernelSelector.Select("scalar:avxvnni"));
             Assert.Contains("does not have AvxVnni", e.Message, StringComparison.Ordinal);
+            // Asked directly of the GEMM, a path the CPU lacks is refused too, never run as the slow scalar one.
+            var packed = PackedMatrix.FromRowMajor(new float[8 * 4], 8, 4, null, Assay.Weights.WeightPrecision.Integer8);
+            var g = Assert.Throws<ArgumentException>(() => CpuKernels.Gemm(new float[8], 1, 8, packed, new float[4], 4, accumulate: false, KernelVariant.Scalar, int8: Int8Kernel.AvxVnni));
+            Assert.Contains("does not have the int8 path AvxVnni", g.Message, StringComparison.Ordinal);
         }
     }
 
