@@ -23,8 +23,10 @@ public class KernelBenchmarks
 {
     private const int D = 768, Inner = 3072, Vocabulary = 50257, Heads = 12, Tokens = 256;
 
+    private static readonly AttentionShape AttentionHeadShape = new(Heads, Heads, D / Heads, 0);
     private readonly KernelVariant _variant = KernelSelector.Current;
-    private float[] _a = [], _c = [], _mlp = [], _gain = [], _bias = [], _qkv = [], _attention = [], _scores = [], _keys = [], _p = [], _phi = [], _logits = [];
+    private AttentionScratch _attentionScratch = null!;
+    private float[] _a = [], _c = [], _mlp = [], _gain = [], _bias = [], _qkv = [], _attention = [], _p = [], _phi = [], _logits = [];
     private PackedMatrix _qkvWeights = null!, _mlpIn = null!, _head = null!;
 
     /// <summary>Storage of the projection matrix in the GEMM benchmarks.</summary>
@@ -52,8 +54,7 @@ public class KernelBenchmarks
             precision: Weights == WeightPrecision.Integer8 ? WeightPrecision.BFloat16 : Weights);
         _qkv = Normal(Tokens * 3 * D, 1);
         _attention = new float[Tokens * D];
-        _scores = new float[Tokens];
-        _keys = new float[Tokens * (D / Heads)];
+        _attentionScratch = new AttentionScratch(AttentionHeadShape, Tokens);
         _logits = Normal(Vocabulary, 3);
         _p = new float[Vocabulary];
         _phi = new float[D];
@@ -73,7 +74,7 @@ public class KernelBenchmarks
 
     /// <summary>One causal attention head over 256 positions.</summary>
     [Benchmark]
-    public void AttentionHead() => K.CausalAttentionGroup(_qkv, _attention, Tokens, new AttentionShape(Heads, Heads, D / Heads, 0), 0, _scores, _keys, _variant);
+    public void AttentionHead() => K.CausalAttentionGroup(_qkv, _attention, Tokens, AttentionHeadShape, 0, 0, _attentionScratch.Blocks(Tokens), _attentionScratch, _variant);
 
     /// <summary>The next-word distribution: a stable softmax over the vocabulary.</summary>
     [Benchmark]

@@ -164,27 +164,36 @@ internal static unsafe partial class CpuKernels
 
         [MethodImpl(MethodImplOptions.AggressiveInlining)]
         private void Micro<TPanel>(float** rows, byte* bp, float* bias, float* c, int ldc)
-            where TPanel : struct, IPanelRow
+            where TPanel : struct, IPanelRow => MicroTile<TPanel>(_variant, rows, bp, _k, bias, c, ldc, _accumulate);
+    }
+
+    /// <summary>
+    /// One micro-tile on <paramref name="variant"/>'s path: <see cref="MicroRows"/> rows of A (<paramref name="rows"/>)
+    /// times one packed panel of <paramref name="k"/> rows, plus the bias, into a full panel width of C, or added to C
+    /// when <paramref name="accumulate"/>. Each element is one fused multiply-add chain over k in order on every path.
+    /// </summary>
+    [MethodImpl(MethodImplOptions.AggressiveInlining)]
+    private static void MicroTile<TPanel>(KernelVariant variant, float** rows, byte* bp, int k, float* bias, float* c, int ldc, bool accumulate)
+        where TPanel : struct, IPanelRow
+    {
+        switch (variant)
         {
-            switch (_variant)
-            {
-                case KernelVariant.Vector512:
-                    MicroVector512<TPanel>(rows, bp, _k, bias, c, ldc, _accumulate);
-                    break;
-                case KernelVariant.Vector256:
-                    MicroVector256<TPanel>(rows, bp, 0, _k, bias, c, ldc, _accumulate);
-                    MicroVector256<TPanel>(rows, bp, 1, _k, bias == null ? null : bias + 32, c + 32, ldc, _accumulate);
-                    break;
-                case KernelVariant.Vector128:
-                    for (int quarter = 0; quarter < 4; quarter++)
-                    {
-                        MicroVector128<TPanel>(rows, bp, quarter, _k, bias == null ? null : bias + (16 * quarter), c + (16 * quarter), ldc, _accumulate);
-                    }
-                    break;
-                default:
-                    MicroScalar<TPanel>(rows, bp, _k, bias, c, ldc, _accumulate);
-                    break;
-            }
+            case KernelVariant.Vector512:
+                MicroVector512<TPanel>(rows, bp, k, bias, c, ldc, accumulate);
+                break;
+            case KernelVariant.Vector256:
+                MicroVector256<TPanel>(rows, bp, 0, k, bias, c, ldc, accumulate);
+                MicroVector256<TPanel>(rows, bp, 1, k, bias == null ? null : bias + 32, c + 32, ldc, accumulate);
+                break;
+            case KernelVariant.Vector128:
+                for (int quarter = 0; quarter < 4; quarter++)
+                {
+                    MicroVector128<TPanel>(rows, bp, quarter, k, bias == null ? null : bias + (16 * quarter), c + (16 * quarter), ldc, accumulate);
+                }
+                break;
+            default:
+                MicroScalar<TPanel>(rows, bp, k, bias, c, ldc, accumulate);
+                break;
         }
     }
 

@@ -6,7 +6,8 @@ namespace Assay.Kernels;
 internal static partial class CpuKernels
 {
     /// <summary>
-    /// dst[l] = Σ_i s[i] · m[i·stride + l] for l &lt; dst.Length: one fused multiply-add chain per output over i in order,
+    /// dst[l] += Σ_i s[i] · m[i·stride + l] for l &lt; dst.Length: one fused multiply-add chain per output over i in order,
+    /// continuing from dst[l],
     /// the outputs side by side in vector lanes, widest first (512 → 256 → 128 bits, as far as <paramref name="variant"/>
     /// allows), the rest scalar. Every path runs the same chains, so all variants give the same bits.
     /// </summary>
@@ -27,7 +28,7 @@ internal static partial class CpuKernels
         }
         for (; l < dst.Length; l++)
         {
-            float acc = 0f;
+            float acc = dst[l];
             for (int i = 0; i < s.Length; i++)
             {
                 acc = MathF.FusedMultiplyAdd(s[i], m[(i * stride) + l], acc);
@@ -84,7 +85,7 @@ internal static partial class CpuKernels
         /// <summary>floats per vector.</summary>
         static abstract int Count { get; }
 
-        /// <summary>dst[l] = Σ_i s[i] · m[i·stride + l] for the first <see cref="Count"/> l.</summary>
+        /// <summary>dst[l] += Σ_i s[i] · m[i·stride + l] for the first <see cref="Count"/> l, one chain continuing from dst[l].</summary>
         static abstract void WeightedSum(ReadOnlySpan<float> s, ReadOnlySpan<float> m, int stride, Span<float> dst);
 
         /// <summary>acc[l] = fma(a[l], b[l], acc[l]) for the first <see cref="Count"/> l.</summary>
@@ -98,7 +99,7 @@ internal static partial class CpuKernels
         [MethodImpl(MethodImplOptions.AggressiveInlining)]
         public static void WeightedSum(ReadOnlySpan<float> s, ReadOnlySpan<float> m, int stride, Span<float> dst)
         {
-            Vector512<float> acc = Vector512<float>.Zero;
+            Vector512<float> acc = Vector512.Create((ReadOnlySpan<float>)dst);
             for (int i = 0; i < s.Length; i++)
             {
                 acc = Vector512.FusedMultiplyAdd(Vector512.Create(s[i]), Vector512.Create(m.Slice(i * stride, Count)), acc);
@@ -118,7 +119,7 @@ internal static partial class CpuKernels
         [MethodImpl(MethodImplOptions.AggressiveInlining)]
         public static void WeightedSum(ReadOnlySpan<float> s, ReadOnlySpan<float> m, int stride, Span<float> dst)
         {
-            Vector256<float> acc = Vector256<float>.Zero;
+            Vector256<float> acc = Vector256.Create((ReadOnlySpan<float>)dst);
             for (int i = 0; i < s.Length; i++)
             {
                 acc = Vector256.FusedMultiplyAdd(Vector256.Create(s[i]), Vector256.Create(m.Slice(i * stride, Count)), acc);
@@ -138,7 +139,7 @@ internal static partial class CpuKernels
         [MethodImpl(MethodImplOptions.AggressiveInlining)]
         public static void WeightedSum(ReadOnlySpan<float> s, ReadOnlySpan<float> m, int stride, Span<float> dst)
         {
-            Vector128<float> acc = Vector128<float>.Zero;
+            Vector128<float> acc = Vector128.Create((ReadOnlySpan<float>)dst);
             for (int i = 0; i < s.Length; i++)
             {
                 acc = Vector128.FusedMultiplyAdd(Vector128.Create(s[i]), Vector128.Create(m.Slice(i * stride, Count)), acc);

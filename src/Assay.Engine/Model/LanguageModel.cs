@@ -94,7 +94,8 @@ public sealed class LanguageModel
     /// An estimate of the memory one forward pass over <paramref name="tokenBudget"/> tokens takes beyond the weights:
     /// the residual stream and its normed copy, q/k/v, the attention output, the MLP's inner activations (twice, for the
     /// gate) and the parallel residual's input, doubled for the buffer pool's rounding up to powers of two; plus logits
-    /// at every position (what cross-entropy asks for, the most any command does).
+    /// at every position (what cross-entropy asks for, the most any command does); plus one attention scratch per core
+    /// for a sequence as long as the budget or the context allows.
     /// </summary>
     public static long ActivationBytesFor(ModelConfig config, int tokenBudget)
     {
@@ -102,7 +103,9 @@ public sealed class LanguageModel
         ArgumentOutOfRangeException.ThrowIfNegativeOrZero(tokenBudget);
         long q = (long)config.Heads * config.HeadWidth, kv = (long)config.KeyValueHeads * config.HeadWidth;
         long perToken = (3L * config.Width) + q + (2 * kv) + q + ((config.GatedMlp ? 2L : 1L) * config.InnerWidth);
-        return (2 * sizeof(float) * tokenBudget * perToken) + ((long)sizeof(float) * tokenBudget * config.VocabularySize);
+        long attention = Environment.ProcessorCount * AttentionScratch.BytesFor(
+            new AttentionShape(config.Heads, config.KeyValueHeads, config.HeadWidth, Window: 0), Math.Min(tokenBudget, config.ContextLength));
+        return (2 * sizeof(float) * tokenBudget * perToken) + ((long)sizeof(float) * tokenBudget * config.VocabularySize) + attention;
     }
 
     /// <summary>

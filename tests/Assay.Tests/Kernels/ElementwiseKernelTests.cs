@@ -83,6 +83,15 @@ public sealed class ElementwiseKernelTests
     [InlineData(71, 120, 15, 3, 0)]
     [InlineData(71, 120, 15, 3, 9)]
     [InlineData(20, 24, 4, 1, 1)]
+    // Several query blocks and key panels: head width 64 at 300 positions; 128 and 80 (two value panels, the second
+    // padded); groups of 4 and 7; windows wider and narrower than a block.
+    [InlineData(300, 256, 4, 4, 0)]
+    [InlineData(200, 256, 2, 2, 0)]
+    [InlineData(150, 160, 2, 1, 0)]
+    [InlineData(130, 256, 8, 2, 0)]
+    [InlineData(97, 224, 14, 2, 0)]
+    [InlineData(300, 128, 2, 2, 100)]
+    [InlineData(130, 256, 8, 2, 5)]
     public void Attention_matches_reference_with_the_same_bits_on_every_variant(int length, int width, int heads, int kvHeads, int window)
     {
         int hd = width / heads;
@@ -98,18 +107,71 @@ public sealed class ElementwiseKernelTests
                 expected[i] += one[i];
             }
         }
-        float[]? first = null;
+        float[] inOrder = InOrderAttention(qkv, length, shape);
+        var scratch = new AttentionScratch(shape, length);
+        int blocks = scratch.Blocks(length);
         foreach (KernelVariant v in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
         {
             float[] o = new float[length * width];
             for (int kv = 0; kv < kvHeads; kv++)
             {
-                K.CausalAttentionGroup(qkv, o, length, shape, kv, new float[length], new float[hd * length], v);
+                K.CausalAttentionGroup(qkv, o, length, shape, kv, 0, blocks, scratch, v);
             }
             Tolerance.AssertClose(o, expected, 1e-5, 1e-5, $"attention, {v}");
-            // Each score and output element is the same in-order FMA chain on every path (tolerance 0).
-            first ??= o;
-            Assert.Equal(first, o);
+            // Each score and output element is the same in-order FMA chain as a plain loop per row, on every path
+            // and however the blocks are split between calls (tolerance 0).
+            Assert.Equal(inOrder, o);
+            float[] split = new float[length * width];
+            int[] cuts = [0, blocks / 3, (2 * blocks) / 3, blocks];
+            for (int kv = kvHeads - 1; kv >= 0; kv--)
+            {
+                for (int c = 2; c >= 0; c--)
+                {
+                    K.CausalAttentionGroup(qkv, split, length, shape, kv, cuts[c], cuts[c + 1], scratch, v);
+                }
+            }
+            Assert.Equal(inOrder, split);
         }
+    }
+
+    /// <summary>
+    /// Attention one query row at a time in float32: each score one FMA chain over the head's columns in order, scaled,
+    /// the engine's softmax over exactly the positions the row sees, each output element one FMA chain over those
+    /// positions in order: the arithmetic the blocked kernel promises to reproduce bit for bit.
+    /// </summary>
+    private static float[] InOrderAttention(float[] qkv, int length, AttentionShape shape)
+    {
+        int hd = shape.HeadWidth, stride = shape.RowWidth, width = shape.Heads * hd, group = shape.Heads / shape.KeyValueHeads;
+        float scale = 1f / MathF.Sqrt(hd);
+        float[] o = new float[length * width];
+        for (int head = 0; head < shape.Heads; head++)
+        {
+            int kv = head / group, k0 = (shape.Heads + kv) * hd, v0 = (shape.Heads + shape.KeyValueHeads + kv) * hd;
+            for (int t = 0; t < length; t++)
+            {
+                int first = shape.Window > 0 ? Math.Max(0, t - shape.Window + 1) : 0;
+                float[] s = new float[t - first + 1];
+                for (int j = first; j <= t; j++)
+                {
+                    float dot = 0f;
+                    for (int c = 0; c < hd; c++)
+                    {
+                        dot = MathF.FusedMultiplyAdd(qkv[(t * stride) + (head * hd) + c], qkv[(j * stride) + k0 + c], dot);
+                    }
+                    s[j - first] = dot * scale;
+                }
+                K.SoftmaxInPlace<float>(s);
+                for (int c = 0; c < hd; c++)
+                {
+                    float acc = 0f;
+                    for (int j = first; j <= t; j++)
+                    {
+                        acc = MathF.FusedMultiplyAdd(s[j - first], qkv[(j * stride) + v0 + c], acc);
+                    }
+                    o[(t * width) + (head * hd) + c] = acc;
+                }
+            }
+        }
+        return o;
     }
 }
