@@ -17,8 +17,8 @@ internal static unsafe partial class CpuKernels
     /// Blocked: the keys and values the blocks read are packed once as GEMM panels; a block's query rows (its positions ×
     /// the group's heads, which share the key/value tiles) get their scores from the GEMM micro-tiles over the key panels
     /// up to the block's last position (panels past it are never touched), one softmax per row over exactly the keys it
-    /// sees, and their outputs from micro-tiles over the positions every row of the block sees; the few positions only
-    /// some rows see (the causal diagonal, a window's edge) are added row by row. Every score is one fused multiply-add
+    /// sees, and their outputs from micro-tiles over the positions every row of the micro-tile sees; the few positions
+    /// only some of its rows see (the causal diagonal, a window's edge) are added row by row. Every score is one fused multiply-add
     /// chain over the head's columns in order and every output element one chain over the positions in order, whatever
     /// the blocking, the split into calls or the variant, so all give the same bits (those of a plain loop per row).
     /// </para>
@@ -83,12 +83,18 @@ internal static unsafe partial class CpuKernels
                 }
                 queries.AsSpan(real * hd, (padded - real) * hd).Clear();
 
-                // Scores over every key panel the block reads (one key panel stays hot while the rows pass it).
+                // Scores of each micro-tile of rows over the key panels its positions see (one key panel stays hot
+                // while the rows pass it; panels past a tile's last position are never touched).
                 for (int p = panel0; p < panelEnd; p++)
                 {
                     byte* panel = (byte*)(pk + ((long)p * hd * W));
-                    for (int r0 = 0; r0 < padded; r0 += mr)
+                    for (int r0 = 0; r0 < real; r0 += mr)
                     {
+                        (int tFirst, int tLast) = TilePositions(t0, r0, mr, real, group);
+                        if (p * W > tLast || (p + 1) * W <= First(tFirst, window))
+                        {
+                            continue;
+                        }
                         for (int i = 0; i < mr; i++)
                         {
                             rows[i] = pq + ((r0 + i) * hd);
@@ -106,31 +112,35 @@ internal static unsafe partial class CpuKernels
                     SoftmaxInPlace(s);
                 }
 
-                // Outputs: positions [shared0, shared1] are seen by every row of the block; a row's earlier positions
-                // (a window's edge) go before them and its later ones (the diagonal) after, so each chain stays in order.
+                // Outputs, a micro-tile of rows at a time: positions [shared0, shared1] are seen by every row of the
+                // tile; a row's earlier positions (a window's edge) go before them and its later ones (the diagonal,
+                // fewer than the tile's rows) after, so each chain stays in order.
                 outs.AsSpan(0, padded * ldo).Clear();
-                int shared0 = First(t1 - 1, window), shared1 = t0;
-                bool shared = shared0 <= shared1;
-                for (int r = 0; r < real; r++)
+                for (int r0 = 0; r0 < real; r0 += mr)
                 {
-                    int t = t0 + (r / group), f = First(t, window);
-                    AddValues(scores, (r * lds) + (f - jlo), f, (shared ? shared0 - 1 : t) - f + 1, values, capacity, outs, r * ldo, hd, variant);
-                }
-                if (shared)
-                {
+                    (int tFirst, int tLast) = TilePositions(t0, r0, mr, real, group);
+                    int shared0 = First(tLast, window), shared1 = tFirst;
+                    bool shared = shared0 <= shared1;
+                    int rEnd = Math.Min(real, r0 + mr);
+                    for (int r = r0; r < rEnd; r++)
+                    {
+                        int t = t0 + (r / group), f = First(t, window);
+                        AddValues(scores, (r * lds) + (f - jlo), f, (shared ? shared0 - 1 : t) - f + 1, values, capacity, outs, r * ldo, hd, variant);
+                    }
+                    if (!shared)
+                    {
+                        continue;
+                    }
+                    for (int i = 0; i < mr; i++)
+                    {
+                        rows[i] = ps + ((long)(r0 + i) * lds) + (shared0 - jlo);
+                    }
                     for (int p = 0; p < vPanels; p++)
                     {
                         byte* panel = (byte*)(pv + ((((long)p * capacity) + shared0) * W));
-                        for (int r0 = 0; r0 < padded; r0 += mr)
-                        {
-                            for (int i = 0; i < mr; i++)
-                            {
-                                rows[i] = ps + ((long)(r0 + i) * lds) + (shared0 - jlo);
-                            }
-                            MicroTile<Float32Panel>(variant, rows, panel, shared1 - shared0 + 1, null, po + (r0 * ldo) + (p * W), ldo, accumulate: true);
-                        }
+                        MicroTile<Float32Panel>(variant, rows, panel, shared1 - shared0 + 1, null, po + (r0 * ldo) + (p * W), ldo, accumulate: true);
                     }
-                    for (int r = 0; r < real; r++)
+                    for (int r = r0; r < rEnd; r++)
                     {
                         int t = t0 + (r / group);
                         AddValues(scores, (r * lds) + (shared1 + 1 - jlo), shared1 + 1, t - shared1, values, capacity, outs, r * ldo, hd, variant);
@@ -145,6 +155,10 @@ internal static unsafe partial class CpuKernels
             }
         }
     }
+
+    /// <summary>The positions of the first and last real row of the micro-tile of rows from <paramref name="r0"/>.</summary>
+    private static (int First, int Last) TilePositions(int t0, int r0, int mr, int real, int group) =>
+        (t0 + (r0 / group), t0 + ((Math.Min(real, r0 + mr) - 1) / group));
 
     /// <summary>The first position query position <paramref name="t"/> sees.</summary>
     private static int First(int t, int window) => window > 0 ? Math.Max(0, t - window + 1) : 0;
