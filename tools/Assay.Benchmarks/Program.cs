@@ -1,11 +1,16 @@
 using System.Globalization;
 using Assay.Benchmarks;
 
-// assay-bench extract-scaling [--model DIR | --shape demo|gpt2-small] [--weights W] [--rows N] [--factor K] [--repeats R] [--features LIST]
+// assay-bench extract-scaling [--model DIR | --shape demo|gpt2-small|llama-1b|llama-8b] [--weights W] [--rows N] [--factor K] [--repeats R] [--features LIST]
 // assay-bench gemm [--repeats R] [--threads N]
 // assay-bench kernels [BenchmarkDotNet arguments]
 // assay-bench tokenize
-const string usage = "usage: assay-bench extract-scaling [--model DIR | --shape demo|gpt2-small] [--weights auto|float32|bfloat16|int8] [--rows N] [--factor K] [--repeats R] [--features LIST]\n       assay-bench gemm [--repeats R] [--threads N]\n       assay-bench kernels [BenchmarkDotNet arguments, e.g. --filter *Gemm*]\n       assay-bench tokenize";
+// assay-bench attention [--repeats R]
+const string usage = "usage: assay-bench extract-scaling [--model DIR | --shape demo|gpt2-small|llama-1b|llama-8b] [--weights auto|float32|bfloat16|int8] [--rows N] [--factor K] [--repeats R] [--features LIST]\n       assay-bench gemm [--repeats R] [--threads N]\n       assay-bench kernels [BenchmarkDotNet arguments, e.g. --filter *Gemm*]\n       assay-bench tokenize\n       assay-bench attention [--repeats R]";
+if (args.Length is 1 or 3 && args[0] == "attention")
+{
+    return AttentionScaling.Run(args.Length == 3 && args[1] == "--repeats" ? int.Parse(args[2], CultureInfo.InvariantCulture) : 5, Console.Out);
+}
 if (args.Length == 1 && args[0] == "tokenize")
 {
     return TokenizeScaling.Run(Console.Out);

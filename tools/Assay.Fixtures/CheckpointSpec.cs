@@ -92,6 +92,26 @@ public sealed record CheckpointSpec
         Width = 768, Layers = 12, Heads = 12, Context = 1024, Vocabulary = 50257, Tokenizer = TokenizerFiles.Gpt2,
     };
 
+    /// <summary>
+    /// A Llama-style 1B shape: hidden 2048, 16 layers, 32 heads on 8 key/value heads, gated MLP 8192, vocabulary
+    /// 128,256, tied, stored in bfloat16 (2.5 GB), with the GPT-2 tokenizer files so text commands run on it.
+    /// </summary>
+    public static CheckpointSpec Llama1B { get; } = new()
+    {
+        Family = "llama", Width = 2048, Layers = 16, Heads = 32, KeyValueHeads = 8, Inner = 8192, Vocabulary = 128256,
+        Context = 4096, RopeTheta = 500000, Tied = true, DType = "BF16", MaskBuffers = false, Tokenizer = TokenizerFiles.Gpt2,
+    };
+
+    /// <summary>
+    /// A Llama-style 8B shape: hidden 4096, 32 layers, 32 heads on 8 key/value heads, gated MLP 14336, vocabulary
+    /// 128,256, untied, stored in bfloat16 (16 GB), with the GPT-2 tokenizer files.
+    /// </summary>
+    public static CheckpointSpec Llama8B { get; } = new()
+    {
+        Family = "llama", Width = 4096, Layers = 32, Heads = 32, KeyValueHeads = 8, Inner = 14336, Vocabulary = 128256,
+        Context = 4096, RopeTheta = 500000, Tied = false, DType = "BF16", MaskBuffers = false, Tokenizer = TokenizerFiles.Gpt2,
+    };
+
     /// <summary>A small model with the GPT-2 vocabulary, for the demo command.</summary>
     public static CheckpointSpec Demo { get; } = new()
     {

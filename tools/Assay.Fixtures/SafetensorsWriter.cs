@@ -27,7 +27,44 @@ public static class SafetensorsWriter
         }
     }
 
-    public static byte[] Header(IReadOnlyList<RawTensor> tensors, IReadOnlyDictionary<string, string>? metadata)
+    /// <summary>
+    /// Writes the same bytes as <see cref="Write"/>, holding one tensor at a time: each is written to a temporary file
+    /// beside <paramref name="path"/> as it comes and then dropped, and the header and that data make the file. For
+    /// checkpoints larger than memory (an 8B shape is 16 GB in bfloat16).
+    /// </summary>
+    public static void WriteStreamed(string path, IEnumerable<RawTensor> tensors, IReadOnlyDictionary<string, string>? metadata = null)
+    {
+        string dataPath = path + ".data";
+        var entries = new List<(string Name, string DType, long[] Shape, long Bytes)>();
+        try
+        {
+            using (var data = new FileStream(dataPath, FileMode.Create, FileAccess.Write))
+            {
+                foreach (RawTensor t in tensors)
+                {
+                    data.Write(t.Data);
+                    entries.Add((t.Name, t.DType, t.Shape, t.Data.LongLength));
+                }
+            }
+            byte[] header = Header(entries, metadata);
+            using var stream = new FileStream(path, FileMode.Create, FileAccess.Write);
+            Span<byte> length = stackalloc byte[8];
+            BinaryPrimitives.WriteUInt64LittleEndian(length, (ulong)header.Length);
+            stream.Write(length);
+            stream.Write(header);
+            using var source = new FileStream(dataPath, FileMode.Open, FileAccess.Read);
+            source.CopyTo(stream, 1 << 22);
+        }
+        finally
+        {
+            File.Delete(dataPath);
+        }
+    }
+
+    public static byte[] Header(IReadOnlyList<RawTensor> tensors, IReadOnlyDictionary<string, string>? metadata) =>
+        Header([.. tensors.Select(t => (t.Name, t.DType, t.Shape, t.Data.LongLength))], metadata);
+
+    private static byte[] Header(IReadOnlyList<(string Name, string DType, long[] Shape, long Bytes)> tensors, IReadOnlyDictionary<string, string>? metadata)
     {
         using var buffer = new MemoryStream();
         using (var json = new Utf8JsonWriter(buffer))
@@ -43,7 +80,7 @@ public static class SafetensorsWriter
                 json.WriteEndObject();
             }
             long offset = 0;
-            foreach (RawTensor t in tensors)
+            foreach ((string Name, string DType, long[] Shape, long Bytes) t in tensors)
             {
                 json.WriteStartObject(t.Name);
                 json.WriteString("dtype", t.DType);
@@ -55,10 +92,10 @@ public static class SafetensorsWriter
                 json.WriteEndArray();
                 json.WriteStartArray("data_offsets");
                 json.WriteNumberValue(offset);
-                json.WriteNumberValue(offset + t.Data.Length);
+                json.WriteNumberValue(offset + t.Bytes);
                 json.WriteEndArray();
                 json.WriteEndObject();
-                offset += t.Data.Length;
+                offset += t.Bytes;
             }
             json.WriteEndObject();
         }

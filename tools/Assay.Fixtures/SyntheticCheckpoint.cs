@@ -150,6 +150,25 @@ public static class SyntheticCheckpoint
         return folder;
     }
 
+    /// <summary>The parameters encoded in the spec's dtype, each block's buffers after its last parameter, as published files order them.</summary>
+    private static IEnumerable<RawTensor> Tensors(CheckpointSpec spec, IEnumerable<StoredParameter> parameters)
+    {
+        string p = spec.Prefix ? "transformer." : "";
+        int blockSeen = -1;
+        foreach (StoredParameter sp in parameters)
+        {
+            yield return new RawTensor(sp.Name, spec.DType, sp.Shape, SafetensorsWriter.Encode(sp.Values, spec.DType));
+            if (spec.MaskBuffers && sp.Name.EndsWith(LastOfBlock(spec), StringComparison.Ordinal))
+            {
+                blockSeen++;
+                foreach (RawTensor buffer in Buffers(spec, blockSeen, p))
+                {
+                    yield return buffer;
+                }
+            }
+        }
+    }
+
     public static void WriteConfig(CheckpointSpec spec, string path)
     {
         using var stream = File.Create(path);
@@ -225,27 +244,15 @@ public static class SyntheticCheckpoint
 
     private static void WriteWeights(CheckpointSpec spec, IEnumerable<StoredParameter> parameters, string folder)
     {
-        var tensors = new List<RawTensor>();
-        string p = spec.Prefix ? "transformer." : "";
-        int blockSeen = -1;
-        foreach (StoredParameter sp in parameters)
-        {
-            tensors.Add(new RawTensor(sp.Name, spec.DType, sp.Shape, SafetensorsWriter.Encode(sp.Values, spec.DType)));
-            // After each block's last parameter come its buffers, as in published files.
-            if (spec.MaskBuffers && sp.Name.EndsWith(LastOfBlock(spec), StringComparison.Ordinal))
-            {
-                blockSeen++;
-                tensors.AddRange(Buffers(spec, blockSeen, p));
-            }
-        }
-
         if (spec.Shards <= 1)
         {
-            SafetensorsWriter.Write(Path.Combine(folder, "model.safetensors"), tensors,
+            // One tensor in memory at a time, so shapes larger than memory can be written.
+            SafetensorsWriter.WriteStreamed(Path.Combine(folder, "model.safetensors"), Tensors(spec, parameters),
                 new Dictionary<string, string> { ["format"] = "pt" });
             return;
         }
 
+        var tensors = Tensors(spec, parameters).ToList();
         var weightMap = new SortedDictionary<string, string>(StringComparer.Ordinal);
         int per = (tensors.Count + spec.Shards - 1) / spec.Shards;
         long total = 0;

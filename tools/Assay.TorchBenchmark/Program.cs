@@ -8,18 +8,26 @@ using static TorchSharp.torch;
 using Assay.Weights;
 
 // assay-torch-bench [--shape gpt2-small|llama-1b] [--batch B] [--length T] [--repeats R] [--threads N]
+// assay-torch-bench [--shape gpt2-small|llama-1b] --lengths T1,T2,… [--tokens N] [--repeats R] [--threads N]
 // One run, one process: the engine's forward pass and libtorch's (float32 and bfloat16) on the same random weights
 // (Assay.Fixtures' deterministic checkpoint: GPT-2 small in float32, or a Llama-style 1B shape — hidden 2048, 16
 // layers, 32 heads on 8 key/value heads, intermediate 8192, vocabulary 128,256, tied — stored in bfloat16, which
 // widens exactly) and the same token batches, head at the last position only; the FMA peak of this CPU measured in
 // the same run; medians of R timed repeats after one warm-up each. Prints the CPU, the kernel paths and a Markdown table.
-int batch = 8, length = 128, repeats = 5, threads = Environment.ProcessorCount;
+// With --lengths: tokens/s of each system at each row length instead (LengthSweep), about N tokens a batch (default 2048).
+int batch = 8, length = 128, repeats = 5, threads = Environment.ProcessorCount, sweepTokens = 2048;
 string shape = "gpt2-small";
+int[]? lengths = null;
 for (int i = 0; i + 1 < args.Length; i += 2)
 {
     if (args[i] == "--shape")
     {
         shape = args[i + 1];
+        continue;
+    }
+    if (args[i] == "--lengths")
+    {
+        lengths = [.. args[i + 1].Split(',').Select(t => int.Parse(t, CultureInfo.InvariantCulture))];
         continue;
     }
     int v = int.Parse(args[i + 1], CultureInfo.InvariantCulture);
@@ -29,6 +37,7 @@ for (int i = 0; i + 1 < args.Length; i += 2)
         case "--length": length = v; break;
         case "--repeats": repeats = v; break;
         case "--threads": threads = v; break;
+        case "--tokens": sweepTokens = v; break;
         default:
             Console.Error.WriteLine($"assay-torch-bench: unknown option {args[i]}");
             return 2;
@@ -36,18 +45,14 @@ for (int i = 0; i + 1 < args.Length; i += 2)
 }
 if (args.Length % 2 != 0 || shape is not ("gpt2-small" or "llama-1b"))
 {
-    Console.Error.WriteLine("usage: assay-torch-bench [--shape gpt2-small|llama-1b] [--batch B] [--length T] [--repeats R] [--threads N]");
+    Console.Error.WriteLine("usage: assay-torch-bench [--shape gpt2-small|llama-1b] [--batch B] [--length T] [--repeats R] [--threads N]\n       assay-torch-bench [--shape gpt2-small|llama-1b] --lengths T1,T2,… [--tokens N] [--repeats R] [--threads N]");
     return 2;
 }
 torch.set_num_threads(threads);
 CultureInfo inv = CultureInfo.InvariantCulture;
 bool llama = shape == "llama-1b";
 CheckpointSpec spec = llama
-    ? new CheckpointSpec
-    {
-        Family = "llama", Width = 2048, Layers = 16, Heads = 32, KeyValueHeads = 8, Inner = 8192, Vocabulary = 128256,
-        Context = Math.Max(2048, length), RopeTheta = 500000, Tied = true, DType = "BF16", MaskBuffers = false, Tokenizer = TokenizerFiles.None,
-    }
+    ? CheckpointSpec.Llama1B with { Context = Math.Max(2048, lengths?.Max() ?? length), Tokenizer = TokenizerFiles.None }
     : CheckpointSpec.Gpt2Small with { DType = "F32" };
 string cpu = File.Exists("/proc/cpuinfo")
     ? File.ReadLines("/proc/cpuinfo").FirstOrDefault(l => l.StartsWith("model name", StringComparison.Ordinal))?.Split(':', 2)[1].Trim() ?? "unknown"
@@ -57,6 +62,12 @@ try
 {
     Console.Error.WriteLine($"writing the {shape}-shaped checkpoint to {folder} …");
     SyntheticCheckpoint.Write(spec, folder);
+    if (lengths != null)
+    {
+        Console.WriteLine(string.Create(inv, $"CPU: {cpu}, {Environment.ProcessorCount} cores; engine kernels {LanguageModel.Kernels}, int8 {LanguageModel.Int8Kernels}; shape {shape}."));
+        LengthSweep.Run(spec, folder, lengths, sweepTokens, repeats, threads, Torch, Console.Out);
+        return 0;
+    }
     var rng = new DeterministicRandom(7);
     int[][] sequences = [.. Enumerable.Range(0, batch).Select(_ => Enumerable.Range(0, length).Select(_ => (int)(rng.NextUInt64() % (ulong)spec.Vocabulary)).ToArray())];
     long[] flat = [.. sequences.SelectMany(s => s).Select(t => (long)t)];
@@ -85,8 +96,7 @@ try
     }
     var engine32 = RunEngine(WeightPrecision.Binary32);
     var engine16 = RunEngine(WeightPrecision.BFloat16);
-    // int8 has a fast path only with AVX-VNNI (issue 20); at the 1B shape its slow path would take minutes a pass.
-    (double Seconds, float[] Logits, float[] Hidden)? engine8 = llama ? null : RunEngine(WeightPrecision.Integer8);
+    var engine8 = RunEngine(WeightPrecision.Integer8);
     double engineSeconds = engine32.Seconds;
     float[] engineLogits = engine32.Logits;
 
@@ -125,25 +135,19 @@ try
         $"| {name} | {seconds:F3} | {tokens / seconds:F0} | {flops / seconds / 1e9:F1} | {flops / seconds / 1e9 / peak:P0} | {seconds / engineSeconds:F2} |"));
     Row("engine, float32", engineSeconds);
     Row("engine, bfloat16 weights", engine16.Seconds);
-    if (engine8 is { } e8)
-    {
-        Row("engine, int8 projections", e8.Seconds);
-    }
+    Row("engine, int8 projections", engine8.Seconds);
     Row("libtorch 2.10, float32", torch32);
     Row("libtorch 2.10, bfloat16", torch16);
     Console.WriteLine();
     Console.WriteLine(string.Create(inv, $"Engine over libtorch float32: {torch32 / engineSeconds:F2}×. Engine bfloat16 over libtorch bfloat16: {torch16 / engine16.Seconds:F2}×")
-        + (engine8 is { } i8 ? string.Create(inv, $"; engine int8 over libtorch bfloat16: {torch16 / i8.Seconds:F2}×.") : "; int8 not timed at this shape."));
+        + string.Create(inv, $"; engine int8 over libtorch bfloat16: {torch16 / engine8.Seconds:F2}×."));
     Console.WriteLine();
     Console.WriteLine("Drift against the engine's float32 pass, worst of the batch's last positions (cosine; max abs difference):");
     Console.WriteLine();
     Console.WriteLine("| | final hidden state | last-position logits |");
     Console.WriteLine("|---|---|---|");
     Console.WriteLine(string.Create(inv, $"| engine, bfloat16 weights | {WorstCosine(engine32.Hidden, engine16.Hidden, spec.Width):F6}; {MaxAbs(engine32.Hidden, engine16.Hidden):G3} | {WorstCosine(engineLogits, engine16.Logits, spec.Vocabulary):F6}; {MaxAbs(engineLogits, engine16.Logits):G3} |"));
-    if (engine8 is { } d8)
-    {
-        Console.WriteLine(string.Create(inv, $"| engine, int8 projections | {WorstCosine(engine32.Hidden, d8.Hidden, spec.Width):F6}; {MaxAbs(engine32.Hidden, d8.Hidden):G3} | {WorstCosine(engineLogits, d8.Logits, spec.Vocabulary):F6}; {MaxAbs(engineLogits, d8.Logits):G3} |"));
-    }
+    Console.WriteLine(string.Create(inv, $"| engine, int8 projections | {WorstCosine(engine32.Hidden, engine8.Hidden, spec.Width):F6}; {MaxAbs(engine32.Hidden, engine8.Hidden):G3} | {WorstCosine(engineLogits, engine8.Logits, spec.Vocabulary):F6}; {MaxAbs(engineLogits, engine8.Logits):G3} |"));
     Console.WriteLine(string.Create(inv, $"| libtorch, bfloat16 | | {torchDrift:F6} |"));
     Console.WriteLine();
     Console.WriteLine(string.Create(inv, $"FMA peak (register-only Vector512 loop, {threads} threads): {peak:F1} GFLOP/s. libtorch float32 matmul 1024 × {spec.Width} · {spec.Width} × {spec.InnerWidth}: {torchGemm:F1} GFLOP/s."));
