@@ -16,11 +16,7 @@ public static class SafetensorsWriter
     public static void Write(string path, IReadOnlyList<RawTensor> tensors, IReadOnlyDictionary<string, string>? metadata = null)
     {
         byte[] header = Header(tensors, metadata);
-        using var stream = new FileStream(path, FileMode.Create, FileAccess.Write);
-        Span<byte> length = stackalloc byte[8];
-        BinaryPrimitives.WriteUInt64LittleEndian(length, (ulong)header.Length);
-        stream.Write(length);
-        stream.Write(header);
+        using FileStream stream = Create(path, header);
         foreach (RawTensor t in tensors)
         {
             stream.Write(t.Data);
@@ -47,11 +43,7 @@ public static class SafetensorsWriter
                 }
             }
             byte[] header = Header(entries, metadata);
-            using var stream = new FileStream(path, FileMode.Create, FileAccess.Write);
-            Span<byte> length = stackalloc byte[8];
-            BinaryPrimitives.WriteUInt64LittleEndian(length, (ulong)header.Length);
-            stream.Write(length);
-            stream.Write(header);
+            using FileStream stream = Create(path, header);
             using var source = new FileStream(dataPath, FileMode.Open, FileAccess.Read);
             source.CopyTo(stream, 1 << 22);
         }
@@ -59,6 +51,17 @@ public static class SafetensorsWriter
         {
             File.Delete(dataPath);
         }
+    }
+
+    /// <summary>Creates <paramref name="path"/> holding the 8-byte header length and the header.</summary>
+    private static FileStream Create(string path, byte[] header)
+    {
+        var stream = new FileStream(path, FileMode.Create, FileAccess.Write);
+        Span<byte> length = stackalloc byte[8];
+        BinaryPrimitives.WriteUInt64LittleEndian(length, (ulong)header.Length);
+        stream.Write(length);
+        stream.Write(header);
+        return stream;
     }
 
     public static byte[] Header(IReadOnlyList<RawTensor> tensors, IReadOnlyDictionary<string, string>? metadata) =>
