@@ -21,15 +21,13 @@ internal sealed class AttentionScratch
         Shape = shape;
         Capacity = capacity;
         BlockPositions = BlockPositionsFor(shape);
-        int hd = shape.HeadWidth;
-        KeyPanels = (capacity + W - 1) / W;
-        ValuePanels = (hd + W - 1) / W;
-        RowsPadded = PaddedRows(shape);
-        Keys = new float[(long)KeyPanels * hd * W];
-        Values = new float[(long)ValuePanels * capacity * W];
-        Queries = new float[RowsPadded * hd];
-        Scores = new float[(long)RowsPadded * KeyPanels * W];
-        Output = new float[RowsPadded * ValuePanels * W];
+        ValuePanels = (shape.HeadWidth + W - 1) / W;
+        (long keys, long values, long queries, long scores, long outputs) = Lengths(shape, capacity);
+        Keys = new float[keys];
+        Values = new float[values];
+        Queries = new float[queries];
+        Scores = new float[scores];
+        Output = new float[outputs];
     }
 
     /// <summary>The heads it was sized for (the window does not change the sizes).</summary>
@@ -40,12 +38,6 @@ internal sealed class AttentionScratch
 
     /// <summary>Query positions per block.</summary>
     public int BlockPositions { get; }
-
-    /// <summary>Rows of a block padded to <see cref="RowMultiple"/>.</summary>
-    public int RowsPadded { get; }
-
-    /// <summary>Panels of 64 keys.</summary>
-    public int KeyPanels { get; }
 
     /// <summary>Panels of 64 head columns (the last zero-padded).</summary>
     public int ValuePanels { get; }
@@ -66,7 +58,11 @@ internal sealed class AttentionScratch
     public float[] Output { get; }
 
     /// <summary>The query blocks of a sequence of <paramref name="length"/> positions.</summary>
-    public int Blocks(int length) => (length + BlockPositions - 1) / BlockPositions;
+    public int Blocks(int length) => BlocksFor(Shape, length);
+
+    /// <summary>The query blocks of a sequence of <paramref name="length"/> positions under <paramref name="shape"/>.</summary>
+    public static int BlocksFor(AttentionShape shape, int length) =>
+        (length + BlockPositionsFor(shape) - 1) / BlockPositionsFor(shape);
 
     /// <summary>True when it holds <paramref name="shape"/>'s heads over <paramref name="length"/> positions.</summary>
     public bool Fits(AttentionShape shape, int length) => Shape with { Window = 0 } == shape with { Window = 0 } && length <= Capacity;
@@ -78,15 +74,18 @@ internal sealed class AttentionScratch
     /// <summary>The bytes one scratch takes for sequences of up to <paramref name="capacity"/> positions.</summary>
     public static long BytesFor(AttentionShape shape, int capacity)
     {
-        long keyPanels = (capacity + W - 1) / W, valuePanels = (shape.HeadWidth + W - 1) / W, rows = PaddedRows(shape);
-        long floats = (keyPanels * shape.HeadWidth * W) + (valuePanels * capacity * W) + (rows * shape.HeadWidth)
-            + (rows * keyPanels * W) + (rows * valuePanels * W);
-        return floats * sizeof(float);
+        (long keys, long values, long queries, long scores, long outputs) = Lengths(shape, capacity);
+        return (keys + values + queries + scores + outputs) * sizeof(float);
     }
 
-    private static int PaddedRows(AttentionShape shape)
+    /// <summary>
+    /// The floats of each array: 64-key panels of every head column, 64-column value panels of every position, and a
+    /// block's query rows (padded to <see cref="RowMultiple"/>) with their scores over every key panel and their outputs.
+    /// </summary>
+    private static (long Keys, long Values, long Queries, long Scores, long Outputs) Lengths(AttentionShape shape, int capacity)
     {
-        int rows = BlockPositionsFor(shape) * (shape.Heads / shape.KeyValueHeads);
-        return (rows + RowMultiple - 1) / RowMultiple * RowMultiple;
+        long keyPanels = (capacity + W - 1) / W, valuePanels = (shape.HeadWidth + W - 1) / W;
+        long rows = (BlockPositionsFor(shape) * (shape.Heads / shape.KeyValueHeads) + RowMultiple - 1) / RowMultiple * RowMultiple;
+        return (keyPanels * shape.HeadWidth * W, valuePanels * capacity * W, rows * shape.HeadWidth, rows * keyPanels * W, rows * valuePanels * W);
     }
 }

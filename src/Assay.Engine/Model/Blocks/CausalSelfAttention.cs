@@ -16,14 +16,13 @@ internal static class CausalSelfAttention
     {
         int stride = shape.RowWidth, outWidth = shape.Heads * shape.HeadWidth, kvHeads = shape.KeyValueHeads;
         int[] starts = batch.Starts, lengths = batch.Lengths;
-        int bq = AttentionScratch.BlockPositionsFor(shape);
         int pairs = lengths.Length * kvHeads;
         int workers = batch.Parallel.MaxDegreeOfParallelism > 0 ? batch.Parallel.MaxDegreeOfParallelism : Environment.ProcessorCount;
         int parts = Math.Max(1, ((2 * workers) + pairs - 1) / pairs);
         var items = new List<(int Sequence, int KvHead, int FirstBlock, int EndBlock)>();
         for (int s = 0; s < lengths.Length; s++)
         {
-            int blocks = (lengths[s] + bq - 1) / bq;
+            int blocks = AttentionScratch.BlocksFor(shape, lengths[s]);
             int cuts = Math.Min(parts, blocks);
             for (int c = 0; c < cuts; c++)
             {
