@@ -11,7 +11,7 @@ namespace Assay.Tests.Slurm;
 /// The Slurm recipe (tools/slurm) on a real single-node Slurm from Debian's packages (slurmctld, slurmd, slurm-client,
 /// munge; started by cluster.sh on loopback): a 4-task array and its dependent merge job, submitted with sbatch, give
 /// a folder byte-identical to a single-process run; a shard whose task fails leaves the merge job cancelled and
-/// assay merge refusing. Needs root and those packages, as CI has (.ci/run installs them).
+/// assay merge refusing. Needs root and those packages, as CI has (tools/test.sh installs them).
 /// </summary>
 public sealed class SlurmArrayTests
 {

@@ -4,7 +4,7 @@ namespace Assay.Tests.Support;
 
 /// <summary>
 /// Runs the node reference scripts (Reference/*.cjs) with the packages of Reference/package.json, installed by
-/// <c>npm ci --prefix tests/Assay.Tests/Reference</c> (as .ci/run does). A missing node or package fails the test with
+/// <c>npm ci --prefix tests/Assay.Tests/Reference</c> (as tools/test.sh does). A missing node or package fails the test with
 /// that command; it never skips.
 /// </summary>
 public static class NodeReference
