@@ -7,8 +7,8 @@ namespace Assay.Cli.Commands;
 /// <summary>The <c>--model</c> option every command shares, defaulting to the demo model shipped beside the executable.</summary>
 internal static class ModelOption
 {
-    /// <summary>The bundled demo model: trained by tools/Assay.Trainer, copied next to the executable at build.</summary>
-    public static string DefaultFolder => Path.Combine(AppContext.BaseDirectory, "models", "assay-demo");
+    /// <summary>The bundled demo model: trained by tools/Assay.Trainer, copied next to the executable at build (and into the tool package).</summary>
+    public static string DefaultFolder => BundledModel.ExpectedFolder;
 
     public static Option<DirectoryInfo> Create() => new("--model", "-m")
     {
