@@ -56,6 +56,10 @@ public sealed class RunFolderDataView : IDataView
         IReadOnlyList<string> stems = features.Count == 0
             ? [.. record.Files.Select(f => Path.GetFileNameWithoutExtension(f.File))]
             : [.. features.Select(f => RunFeatures.Resolve(runFolder, f))];
+        if (stems.Count == 0)
+        {
+            throw new RunFolderException(runFolder, "holds no feature files");
+        }
 
         var columns = new List<ViewColumn> { new(IdColumn, ColumnKind.Text, 0, 0), new(LabelColumn, ColumnKind.Text, 1, 0) };
         var floats = new List<float[]>();
@@ -75,12 +79,9 @@ public sealed class RunFolderDataView : IDataView
                 columns.Add(new ViewColumn(stem, ColumnKind.Floats, floats.Count, f.Width));
                 floats.Add([.. f.Values.Select(v => (float)v)]);
             }
+            // Every feature's load checks rows.csv against its file; the ids and labels are the same each time.
             ids = [.. f.Ids];
             labels = [.. f.Labels];
-        }
-        if (stems.Count == 0)
-        {
-            throw new RunFolderException(runFolder, "holds no feature files");
         }
         ViewColumn.CheckUnique(columns, runFolder);
         return new RunFolderDataView(runFolder, columns, ids, labels, [.. floats], [.. ints]);
