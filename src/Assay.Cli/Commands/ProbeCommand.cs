@@ -50,15 +50,15 @@ internal static class ProbeCommand
         double[] grid = [.. strengths.Split(',', StringSplitOptions.TrimEntries | StringSplitOptions.RemoveEmptyEntries).Select(s =>
             double.TryParse(s, NumberStyles.Float, CultureInfo.InvariantCulture, out double c) && c > 0 && double.IsFinite(c) ? c
                 : throw new ArgumentException($"--strengths: \"{s}\" is not a positive number"))];
+        if (grid.Length == 0)
+        {
+            throw new ArgumentException("--strengths: no values of C to try; give at least one");
+        }
+        if (folds < 2)
+        {
+            throw new ArgumentException($"--folds {folds}: cross-validation needs at least 2 folds");
+        }
         var fitOptions = new ProbeOptions { Folds = folds, InverseRegularizations = grid };
-        try
-        {
-            fitOptions.Validate();
-        }
-        catch (ArgumentException e)
-        {
-            throw new ArgumentException(folds < 2 ? $"--folds {folds}: cross-validation needs at least 2 folds" : $"--strengths: {e.Message}", e);
-        }
         CultureInfo inv = CultureInfo.InvariantCulture;
         err ??= TextWriter.Null;
 

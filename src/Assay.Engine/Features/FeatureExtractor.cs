@@ -43,18 +43,6 @@ public sealed class FeatureExtractor
         ArgumentNullException.ThrowIfNull(options);
         _model = model;
         _options = options;
-        if (options.TokenBudget < 1)
-        {
-            throw new ArgumentException($"token budget {options.TokenBudget}: expected a positive number of tokens", nameof(options));
-        }
-        if (options.MaxThreads < 0)
-        {
-            throw new ArgumentException($"threads {options.MaxThreads}: expected 0 (all cores) or a positive count", nameof(options));
-        }
-        if (options.Features.Count == 0)
-        {
-            throw new ArgumentException("no features requested", nameof(options));
-        }
 
         var tok = model.Tokenizer;
         _finalLayer = model.Config.Layers;

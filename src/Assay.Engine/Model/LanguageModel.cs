@@ -271,10 +271,6 @@ public sealed class LanguageModel
             total = checked(total + seq.Length);
         }
 
-        if (options.MaxThreads < 0)
-        {
-            throw new ArgumentException($"MaxThreads {options.MaxThreads}: expected 0 (all cores) or a positive count", nameof(options));
-        }
         return new ForwardPass(_weights, c, variant, options.Parallelism, Folder).Run(sequences, starts, lengths, total, options);
     }
 }

@@ -71,14 +71,6 @@ public static class ExtractionRun
         ArgumentNullException.ThrowIfNull(inputPath);
         ArgumentNullException.ThrowIfNull(outputFolder);
         ArgumentNullException.ThrowIfNull(options);
-        if (options.CommitRows < 1)
-        {
-            throw new ArgumentException($"commit rows {options.CommitRows}: expected a positive number", nameof(options));
-        }
-        if (options.Resume && options.Overwrite)
-        {
-            throw new ArgumentException("resume and overwrite exclude each other: resume continues the run in the folder, overwrite replaces it", nameof(options));
-        }
         var extractor = new FeatureExtractor(model, options.Extraction);
         if (options.Resume && TextInputReader.Check(inputPath))
         {

@@ -2,38 +2,42 @@ using System.Text.Json.Nodes;
 
 namespace Assay.Evaluation;
 
-/// <summary>How a probe is fitted.</summary>
+/// <summary>How a probe is fitted. Checked as it is built: an invalid value throws from its initializer.</summary>
 public sealed record ProbeOptions
 {
     /// <summary>The values of C, the inverse regularization strength, tried by cross-validation (scikit-learn's C: larger = weaker L2 penalty).</summary>
-    public IReadOnlyList<double> InverseRegularizations { get; init; } = [1e-3, 1e-2, 1e-1, 1, 10, 100];
+    /// <exception cref="ArgumentException">No value, or one that is not a positive finite number.</exception>
+    public IReadOnlyList<double> InverseRegularizations
+    {
+        get;
+        init
+        {
+            ArgumentNullException.ThrowIfNull(value);
+            if (value.Count == 0)
+            {
+                throw new ArgumentException("no values of C to try; give at least one", nameof(InverseRegularizations));
+            }
+            foreach (double c in value)
+            {
+                if (!(c > 0 && double.IsFinite(c)))
+                {
+                    throw new ArgumentOutOfRangeException(nameof(InverseRegularizations), c, "C must be a positive finite number");
+                }
+            }
+            field = [.. value];
+        }
+    } = [1e-3, 1e-2, 1e-1, 1, 10, 100];
 
-    /// <summary>Folds of the stratified cross-validation.</summary>
-    public int Folds { get; init; } = 5;
+    /// <summary>Folds of the stratified cross-validation, at least 2.</summary>
+    /// <exception cref="ArgumentOutOfRangeException">Fewer than 2.</exception>
+    public int Folds
+    {
+        get;
+        init => field = value >= 2 ? value : throw new ArgumentOutOfRangeException(nameof(Folds), value, "cross-validation needs at least 2 folds");
+    } = 5;
 
     /// <summary>Seed of the fold assignment.</summary>
     public ulong Seed { get; init; } = 1;
-
-    /// <summary>Checks the options before any data is read.</summary>
-    /// <exception cref="ArgumentException">Fewer than 2 folds, no C, or a C that is not a positive finite number.</exception>
-    public void Validate()
-    {
-        if (Folds < 2)
-        {
-            throw new ArgumentException($"folds {Folds}: cross-validation needs at least 2 folds");
-        }
-        if (InverseRegularizations.Count == 0)
-        {
-            throw new ArgumentException("no values of C to try; give at least one");
-        }
-        foreach (double c in InverseRegularizations)
-        {
-            if (!(c > 0 && double.IsFinite(c)))
-            {
-                throw new ArgumentException($"C {c.ToString(System.Globalization.CultureInfo.InvariantCulture)}: expected a positive finite number");
-            }
-        }
-    }
 }
 
 /// <summary>How far a probe's search for C has come: values of C done (each one a full cross-validation) of all, the last one and its score.</summary>
@@ -84,7 +88,6 @@ public sealed class LinearProbe
         IProgress<ProbeSearchProgress>? progress = null)
     {
         options ??= new ProbeOptions();
-        options.Validate();
         if (labels.Count != n || x.Length != (long)n * d)
         {
             throw new ArgumentException($"expected {n} × {d} features and {n} labels; got {x.Length} values and {labels.Count} labels");
