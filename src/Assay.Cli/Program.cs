@@ -10,6 +10,7 @@ root.Subcommands.Add(ExtractCommand.Create());
 root.Subcommands.Add(MergeCommand.Create());
 root.Subcommands.Add(ManifestCommand.Create());
 root.Subcommands.Add(ProbeCommand.Create());
+root.Subcommands.Add(CompareCommand.Create());
 root.Subcommands.Add(CrossEntropyCommand.Create());
 root.Subcommands.Add(ZeroShotCommand.Create());
 root.Subcommands.Add(StudyCommand.Create());

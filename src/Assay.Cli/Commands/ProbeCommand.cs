@@ -128,7 +128,7 @@ internal static class ProbeCommand
             RunFeatures data = RunFeatures.Load(testRun, stem);
             ProbeScore scored = ProbeScorer.Score(probe, data, testRun);
             ClassificationReport score = scored.Report;
-            Predictions.Write(Path.Combine(output, ReportFolder.PredictionsFile), data.Ids, data.Labels, probe.Classes, scored.Probabilities);
+            PredictionTable.Write(Path.Combine(output, ReportFolder.PredictionsFile), data.Ids, data.Labels, probe.Classes, scored.Probabilities);
             var tested = new JsonObject { ["run"] = testRun };
             foreach ((string key, JsonNode? value) in score.ToJson(probe.Classes))
             {

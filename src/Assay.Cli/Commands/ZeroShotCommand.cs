@@ -108,7 +108,7 @@ internal static class ZeroShotCommand
         if (outFolder != null)
         {
             using Assay.Output.FolderLock folderLock = ReportFolder.Claim(outFolder, overwrite);
-            Predictions.Write(Path.Combine(outFolder, ReportFolder.PredictionsFile), ids, labels, classes.Classes, scorer.Probabilities());
+            PredictionTable.Write(Path.Combine(outFolder, ReportFolder.PredictionsFile), ids, labels, classes.Classes, scorer.Probabilities());
             var test = new JsonObject { ["input"] = input };
             foreach ((string key, JsonNode? value) in score.ToJson(classes.Classes))
             {
