@@ -88,80 +88,16 @@ public sealed class LinearProbe
         IProgress<ProbeSearchProgress>? progress = null)
     {
         options ??= new ProbeOptions();
-        if (labels.Count != n || x.Length != (long)n * d)
-        {
-            throw new ArgumentException($"expected {n} × {d} features and {n} labels; got {x.Length} values and {labels.Count} labels");
-        }
-        LabelIndex index = LabelIndex.Sorted(labels);
-        string[] classes = [.. index.Classes];
-        if (classes.Length < 2)
-        {
-            throw new ArgumentException($"a probe needs at least two classes; the labels hold {classes.Length}");
-        }
-        int[] y = index.Indices(labels);
-        string? small = classes.FirstOrDefault(c => labels.Count(l => l == c) < options.Folds);
-        if (small != null)
-        {
-            throw new ArgumentException($"class \"{small}\" has fewer rows than the {options.Folds} folds; merge or drop it, or use fewer folds");
-        }
-
-        (double[] mean, double[] scale) = Standardization(x, n, d);
-        double[] z = Standardize(x, n, d, mean, scale);
-        int[] fold = Folds(y, classes.Length, options.Folds, options.Seed);
-        var search = new List<(double C, double LogLoss, double Accuracy)>();
-        var clock = System.Diagnostics.Stopwatch.StartNew();
-        foreach (double c in options.InverseRegularizations)
-        {
-            double loss = 0;
-            int correct = 0;
-            for (int f = 0; f < options.Folds; f++)
-            {
-                int[] train = [.. Enumerable.Range(0, n).Where(i => fold[i] != f)];
-                int[] held = [.. Enumerable.Range(0, n).Where(i => fold[i] == f)];
-                // Standardization inside each fold uses that fold's training rows only.
-                double[] xt = Rows(x, d, train);
-                (double[] m, double[] s) = Standardization(xt, train.Length, d);
-                LogisticRegression model = LogisticRegression.Fit(Standardize(xt, train.Length, d, m, s), train.Length, d, [.. train.Select(i => y[i])], classes.Length, c);
-                double[] p = new double[classes.Length];
-                double[] row = new double[d];
-                foreach (int i in held)
-                {
-                    for (int k = 0; k < d; k++)
-                    {
-                        row[k] = (x[(i * d) + k] - m[k]) / s[k];
-                    }
-                    model.Probabilities(row, p);
-                    loss -= Math.Log(Math.Max(p[y[i]], 1e-15));
-                    correct += MostLikely(p) == y[i] ? 1 : 0;
-                }
-            }
-            search.Add((c, loss / n, (double)correct / n));
-            progress?.Report(new ProbeSearchProgress(search.Count, options.InverseRegularizations.Count, c, loss / n, clock.Elapsed));
-        }
-        double best = search.OrderBy(s => s.LogLoss).ThenBy(s => s.C).First().C;
-        return new LinearProbe(classes, mean, scale, LogisticRegression.Fit(z, n, d, y, classes.Length, best), best, search);
+        (string[] classes, int[] y) = ProbeFitting.Classes(x, n, d, labels, options.Folds);
+        (double best, IReadOnlyList<(double C, double LogLoss, double Accuracy)> search) = ProbeFitting.CrossValidate(x, n, d, y, classes.Length, options,
+            (z, rows, labelsOf, c) => LogisticRegression.Fit(z, rows, d, labelsOf, classes.Length, c), progress);
+        (double[] mean, double[] scale) = ProbeFitting.Standardization(x, n, d);
+        double[] all = ProbeFitting.Standardize(x, n, d, mean, scale);
+        return new LinearProbe(classes, mean, scale, LogisticRegression.Fit(all, n, d, y, classes.Length, best), best, search);
     }
 
     /// <summary>Class probabilities of each of n rows (n × classes, row-major).</summary>
-    public double[] Predict(double[] x, int n, int d)
-    {
-        if (d != Mean.Length || x.Length != (long)n * d)
-        {
-            throw new ArgumentException($"the probe takes {Mean.Length} features a row; got {d}");
-        }
-        int k = Classes.Count;
-        double[] p = new double[n * k];
-        double[] row = new double[d];
-        for (int i = 0; i < n; i++)
-        {
-            for (int f = 0; f < d; f++)
-            {
-                row[f] = (x[(i * d) + f] - Mean[f]) / Scale[f];
-            }
-            _model.Probabilities(row, p.AsSpan(i * k, k));
-        }
-        return p;
-    }
+    public double[] Predict(double[] x, int n, int d) => ProbeFitting.Predict(_model, Classes.Count, Mean, Scale, x, n, d);
 
     /// <summary>The largest probe file read (4,096 features × 1,000 classes as JSON text is about 80 MB).</summary>
     private const long ProbeFileBytes = 1L << 30;
@@ -225,70 +161,5 @@ public sealed class LinearProbe
             best = p[j] > p[best] ? j : best;
         }
         return best;
-    }
-
-    private static (double[] Mean, double[] Scale) Standardization(double[] x, int n, int d)
-    {
-        double[] mean = new double[d], scale = new double[d];
-        for (int i = 0; i < n; i++)
-        {
-            for (int f = 0; f < d; f++)
-            {
-                mean[f] += x[(i * d) + f] / n;
-            }
-        }
-        for (int i = 0; i < n; i++)
-        {
-            for (int f = 0; f < d; f++)
-            {
-                double c = x[(i * d) + f] - mean[f];
-                scale[f] += c * c / n;
-            }
-        }
-        for (int f = 0; f < d; f++)
-        {
-            scale[f] = scale[f] > 0 ? Math.Sqrt(scale[f]) : 1;
-        }
-        return (mean, scale);
-    }
-
-    private static double[] Standardize(double[] x, int n, int d, double[] mean, double[] scale)
-    {
-        double[] z = new double[x.Length];
-        for (int i = 0; i < n; i++)
-        {
-            for (int f = 0; f < d; f++)
-            {
-                z[(i * d) + f] = (x[(i * d) + f] - mean[f]) / scale[f];
-            }
-        }
-        return z;
-    }
-
-    private static double[] Rows(double[] x, int d, int[] rows)
-    {
-        double[] r = new double[rows.Length * d];
-        for (int i = 0; i < rows.Length; i++)
-        {
-            x.AsSpan(rows[i] * d, d).CopyTo(r.AsSpan(i * d, d));
-        }
-        return r;
-    }
-
-    /// <summary>Stratified folds: each class's rows, in a seeded shuffled order, dealt round-robin to the folds.</summary>
-    private static int[] Folds(int[] y, int classes, int folds, ulong seed)
-    {
-        var rng = new Random(unchecked((int)seed) ^ 0x5eed);
-        int[] fold = new int[y.Length];
-        for (int c = 0; c < classes; c++)
-        {
-            int[] rows = [.. Enumerable.Range(0, y.Length).Where(i => y[i] == c)];
-            rng.Shuffle(rows);
-            for (int i = 0; i < rows.Length; i++)
-            {
-                fold[rows[i]] = i % folds;
-            }
-        }
-        return fold;
     }
 }

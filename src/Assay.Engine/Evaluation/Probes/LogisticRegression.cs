@@ -10,7 +10,7 @@ namespace Assay.Evaluation;
 /// LogisticRegression(multi_class="multinomial", penalty="l2", C) — scaled here by 1/(C·n), which moves no minimum,
 /// so the tolerances do not depend on n. The intercepts are determined up to a common constant; they are centred.
 /// </summary>
-internal sealed class LogisticRegression
+internal sealed class LogisticRegression : IProbeModel
 {
     /// <summary>Rows per parallel work item of the objective.</summary>
     private const int RowsPerChunk = 256;
