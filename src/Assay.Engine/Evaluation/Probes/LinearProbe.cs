@@ -85,10 +85,14 @@ public sealed class LinearProbe
     /// <summary>Fits a probe on n rows of d features (row-major) and their labels.</summary>
     /// <exception cref="ArgumentException">Shapes disagree, fewer than two classes, or a class has fewer rows than folds.</exception>
     public static LinearProbe Fit(double[] x, int n, int d, IReadOnlyList<string> labels, ProbeOptions? options = null,
-        IProgress<ProbeSearchProgress>? progress = null)
+        IProgress<ProbeSearchProgress>? progress = null) => Fit(x, n, d, labels, options, progress, allowSmallClasses: false);
+
+    /// <summary>As the public Fit; a control task's labels may leave a class with fewer rows than folds.</summary>
+    internal static LinearProbe Fit(double[] x, int n, int d, IReadOnlyList<string> labels, ProbeOptions? options,
+        IProgress<ProbeSearchProgress>? progress, bool allowSmallClasses)
     {
         options ??= new ProbeOptions();
-        (string[] classes, int[] y) = ProbeFitting.Classes(x, n, d, labels, options.Folds);
+        (string[] classes, int[] y) = ProbeFitting.Classes(x, n, d, labels, options.Folds, allowSmallClasses);
         (double best, IReadOnlyList<(double C, double LogLoss, double Accuracy)> search) = ProbeFitting.CrossValidate(x, n, d, y, classes.Length, options,
             (z, rows, labelsOf, c) => LogisticRegression.Fit(z, rows, d, labelsOf, classes.Length, c), progress);
         (double[] mean, double[] scale) = ProbeFitting.Standardization(x, n, d);

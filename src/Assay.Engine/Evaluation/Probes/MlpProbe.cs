@@ -53,12 +53,16 @@ public sealed class MlpProbe
     /// <param name="progress">Told after each value of C.</param>
     /// <exception cref="ArgumentException">Shapes disagree, fewer than two classes, a class has fewer rows than folds, or no hidden unit.</exception>
     public static MlpProbe Fit(double[] x, int n, int d, IReadOnlyList<string> labels, ProbeOptions? options = null, int hiddenUnits = DefaultHiddenUnits,
-        int maxIterations = 500, IProgress<ProbeSearchProgress>? progress = null)
+        int maxIterations = 500, IProgress<ProbeSearchProgress>? progress = null) => Fit(x, n, d, labels, options, hiddenUnits, maxIterations, progress, allowSmallClasses: false);
+
+    /// <summary>As the public Fit; a control task's labels may leave a class with fewer rows than folds.</summary>
+    internal static MlpProbe Fit(double[] x, int n, int d, IReadOnlyList<string> labels, ProbeOptions? options, int hiddenUnits,
+        int maxIterations, IProgress<ProbeSearchProgress>? progress, bool allowSmallClasses)
     {
         options ??= new ProbeOptions();
         ArgumentOutOfRangeException.ThrowIfLessThan(hiddenUnits, 1);
         ArgumentOutOfRangeException.ThrowIfLessThan(maxIterations, 1);
-        (string[] classes, int[] y) = ProbeFitting.Classes(x, n, d, labels, options.Folds);
+        (string[] classes, int[] y) = ProbeFitting.Classes(x, n, d, labels, options.Folds, allowSmallClasses);
         int unconverged = 0;
         TwoLayerPerceptron Train(double[] z, int rows, int[] labelsOf, double c)
         {

@@ -15,8 +15,9 @@ internal interface IProbeModel
 internal static class ProbeFitting
 {
     /// <summary>Class names (ordinal order) and each row's class index, after checking shapes, two classes or more, and rows for every fold.</summary>
-    /// <exception cref="ArgumentException">Shapes disagree, fewer than two classes, or a class has fewer rows than folds.</exception>
-    public static (string[] Classes, int[] Y) Classes(double[] x, int n, int d, IReadOnlyList<string> labels, int folds)
+    /// <exception cref="ArgumentException">Shapes disagree, fewer than two classes, or (unless allowed: a control task's
+    /// rare classes) a class has fewer rows than folds.</exception>
+    public static (string[] Classes, int[] Y) Classes(double[] x, int n, int d, IReadOnlyList<string> labels, int folds, bool allowSmallClasses = false)
     {
         ArgumentNullException.ThrowIfNull(x);
         ArgumentNullException.ThrowIfNull(labels);
@@ -30,7 +31,7 @@ internal static class ProbeFitting
         {
             throw new ArgumentException($"a probe needs at least two classes; the labels hold {classes.Length}");
         }
-        string? small = classes.FirstOrDefault(c => labels.Count(l => l == c) < folds);
+        string? small = allowSmallClasses ? null : classes.FirstOrDefault(c => labels.Count(l => l == c) < folds);
         if (small != null)
         {
             throw new ArgumentException($"class \"{small}\" has fewer rows than the {folds} folds; merge or drop it, or use fewer folds");
