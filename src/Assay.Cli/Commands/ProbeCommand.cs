@@ -26,19 +26,27 @@ internal static class ProbeCommand
         var strengths = new Option<string>("--strengths") { Description = "Comma-separated C values to try (larger = weaker L2 penalty).", DefaultValueFactory = _ => string.Join(',', new ProbeOptions().InverseRegularizations.Select(c => c.ToString("R", CultureInfo.InvariantCulture))) };
         var allow = new Option<bool>("--allow-different-runs") { Description = "Compare runs extracted differently (another checkpoint, prompt or storage) on purpose; the report records the difference." };
         var overwrite = new Option<bool>("--overwrite") { Description = "Replace an earlier report in the output folder." };
-        var command = new Command("probe", "Fit a linear probe (standardized multinomial logistic regression, C by cross-validation) on run-folder features, or apply a saved one, and report accuracy, log loss, macro-F1 and the confusion matrix.")
+        var mlp = new Option<int>("--mlp") { Description = "Fit the MLP probe instead: one hidden layer of this many tanh units, the same C search (alpha = 1/C). It is scored and reported, not saved." };
+        var control = new Option<string>("--control") { Description = $"Also fit the probe on a control task, labels a fixed random function of each row's type, and report selectivity = task − control accuracy. The type: {ControlTask.KeySpellings}." };
+        var trainInput = new Option<FileInfo>("--train-input") { Description = "The training run's input file (checked by its SHA-256), for a --control key that reads the text or a field." };
+        var testInput = new Option<FileInfo>("--test-input") { Description = "The test run's input file, likewise." };
+        var controlSeed = new Option<ulong>("--control-seed") { Description = "Seed of the control labels.", DefaultValueFactory = _ => 1 };
+        var online = new Option<bool>("--online-code") { Description = "Also measure the online codelength of the training labels (MDL probing at the published block fractions), with the chosen C." };
+        var command = new Command("probe", "Fit a linear probe (standardized multinomial logistic regression, C by cross-validation) on run-folder features, or apply a saved one, and report accuracy, log loss, macro-F1 and the confusion matrix; optionally an MLP probe, a control task's selectivity and the online codelength.")
         {
-            train, saved, test, feature, output, folds, strengths, allow, overwrite,
+            train, saved, test, feature, output, folds, strengths, allow, overwrite, mlp, control, trainInput, testInput, controlSeed, online,
         };
         command.SetAction(r => CommandRunner.Run(() => Run(
             r.GetValue(train)?.FullName, r.GetValue(saved)?.FullName, r.GetValue(test)?.FullName, r.GetValue(feature)!,
-            r.GetValue(output)!.FullName, r.GetValue(folds), r.GetValue(strengths)!, Console.Out, r.GetValue(allow), r.GetValue(overwrite), Console.Error)));
+            r.GetValue(output)!.FullName, r.GetValue(folds), r.GetValue(strengths)!, Console.Out, r.GetValue(allow), r.GetValue(overwrite), Console.Error,
+            new ProbeMethods(r.GetValue(mlp), r.GetValue(control), r.GetValue(trainInput)?.FullName, r.GetValue(testInput)?.FullName, r.GetValue(controlSeed), r.GetValue(online)))));
         return command;
     }
 
     internal static int Run(string? trainRun, string? savedProbe, string? testRun, string feature, string output, int folds, string strengths, TextWriter o,
-        bool allowDifferentRuns = false, bool overwrite = false, TextWriter? err = null)
+        bool allowDifferentRuns = false, bool overwrite = false, TextWriter? err = null, ProbeMethods? methods = null)
     {
+        methods ??= new ProbeMethods();
         if ((trainRun == null) == (savedProbe == null))
         {
             throw new ArgumentException("give --train RUN to fit a probe, or --probe FILE to apply a saved one");
@@ -59,6 +67,24 @@ internal static class ProbeCommand
             throw new ArgumentException($"--folds {folds}: cross-validation needs at least 2 folds");
         }
         var fitOptions = new ProbeOptions { Folds = folds, InverseRegularizations = grid };
+        ProbeKind kind = methods.MlpUnits switch
+        {
+            0 => ProbeKind.Linear,
+            > 0 => ProbeKind.Mlp(methods.MlpUnits),
+            _ => throw new ArgumentException($"--mlp {methods.MlpUnits}: expected a positive number of hidden units"),
+        };
+        if (savedProbe != null && (methods.MlpUnits > 0 || methods.ControlKey != null || methods.OnlineCode))
+        {
+            throw new ArgumentException("--mlp, --control and --online-code fit probes: give --train RUN, not --probe");
+        }
+        if (methods.ControlKey != null && testRun == null)
+        {
+            throw new ArgumentException("--control scores the control task on test rows: give --test RUN too");
+        }
+        if (methods.ControlKey == null && (methods.TrainInput != null || methods.TestInput != null))
+        {
+            throw new ArgumentException("--train-input and --test-input are read for --control; give --control KEY");
+        }
         CultureInfo inv = CultureInfo.InvariantCulture;
         err ??= TextWriter.Null;
 
@@ -91,46 +117,70 @@ internal static class ProbeCommand
         {
             err.WriteLine($"assay: comparing different runs on purpose: {difference}");
         }
+        (string[] Train, string[] Test)? types = methods.ControlKey == null ? null
+            : (ControlTask.Types(trainRun!, methods.ControlKey, methods.TrainInput), ControlTask.Types(testRun!, methods.ControlKey, methods.TestInput));
         using Assay.Output.FolderLock folderLock = ReportFolder.Claim(output, overwrite);
 
-        LinearProbe probe;
-        var report = new JsonObject { ["feature"] = stem };
+        LinearProbe? probe = null;
+        MlpProbe? mlpProbe = null;
+        var report = new JsonObject { ["feature"] = stem, ["probe_kind"] = kind.ToString() };
         if (difference != null)
         {
             report["different_runs"] = difference;
         }
         string[]? trainLabels = null;
+        RunFeatures? trainData = null;
+        IReadOnlyList<string> classes;
+        double chosenC;
         if (trainRun != null)
         {
-            RunFeatures data = RunFeatures.Load(trainRun, stem);
+            trainData = RunFeatures.Load(trainRun, stem);
             var search = SearchProgressPrinter.ForConsole(err);
-            probe = LinearProbe.Fit(data.Values, data.Rows, data.Width, data.Labels, fitOptions, search);
+            IReadOnlyList<(double C, double LogLoss, double Accuracy)> tried;
+            if (kind.HiddenUnits == 0)
+            {
+                probe = LinearProbe.Fit(trainData.Values, trainData.Rows, trainData.Width, trainData.Labels, fitOptions, search);
+                SavedProbe.Create(probe, stem, trainData.Width, trainRecord!).Save(Path.Combine(output, ReportFolder.ProbeFile));
+                (classes, chosenC, tried) = (probe.Classes, probe.InverseRegularization, probe.Search);
+            }
+            else
+            {
+                mlpProbe = MlpProbe.Fit(trainData.Values, trainData.Rows, trainData.Width, trainData.Labels, fitOptions, kind.HiddenUnits, progress: search);
+                (classes, chosenC, tried) = (mlpProbe.Classes, mlpProbe.InverseRegularization, mlpProbe.Search);
+                report["unconverged_fits"] = mlpProbe.Unconverged;
+            }
             search.End();
-            SavedProbe.Create(probe, stem, data.Width, trainRecord!).Save(Path.Combine(output, ReportFolder.ProbeFile));
-            trainLabels = [.. data.Labels];
-            report["train"] = new JsonObject { ["run"] = trainRun, ["rows"] = data.Rows, ["width"] = data.Width };
-            o.WriteLine(string.Create(inv, $"fitted on {data.Rows:N0} rows × {data.Width} features of {stem}, {probe.Classes.Count} classes; C = {probe.InverseRegularization:G4} by {folds}-fold cross-validation"));
+            trainLabels = [.. trainData.Labels];
+            report["train"] = new JsonObject { ["run"] = trainRun, ["rows"] = trainData.Rows, ["width"] = trainData.Width };
+            string what = kind.HiddenUnits == 0 ? "linear probe" : $"MLP probe ({kind.HiddenUnits} tanh units; not saved)";
+            o.WriteLine(string.Create(inv, $"fitted a {what} on {trainData.Rows:N0} rows × {trainData.Width} features of {stem}, {classes.Count} classes; C = {chosenC:G4} by {folds}-fold cross-validation"));
             o.WriteLine("         C   cv log loss   cv accuracy");
-            foreach ((double c, double loss, double accuracy) in probe.Search)
+            foreach ((double c, double loss, double accuracy) in tried)
             {
                 o.WriteLine(string.Create(inv, $"{c,10:G4}  {loss,12:F4}  {accuracy,12:P2}"));
+            }
+            if (mlpProbe is { Unconverged: > 0 })
+            {
+                err.WriteLine($"assay: {mlpProbe.Unconverged} MLP fit(s) stopped at the iteration limit before converging; their parameters are the best point met");
             }
         }
         else
         {
             probe = saved!.Probe;
+            chosenC = probe.InverseRegularization;
             report["probe"] = savedProbe;
         }
-        report["c"] = probe.InverseRegularization;
+        report["c"] = chosenC;
 
         if (testRun != null)
         {
             RunFeatures data = RunFeatures.Load(testRun, stem);
-            ProbeScore scored = ProbeScorer.Score(probe, data, testRun);
+            ProbeScore scored = mlpProbe != null ? ProbeScorer.Score(mlpProbe, data, testRun) : ProbeScorer.Score(probe!, data, testRun);
             ClassificationReport score = scored.Report;
-            PredictionTable.Write(Path.Combine(output, ReportFolder.PredictionsFile), data.Ids, data.Labels, probe.Classes, scored.Probabilities);
+            IReadOnlyList<string> probeClasses = mlpProbe?.Classes ?? probe!.Classes;
+            PredictionTable.Write(Path.Combine(output, ReportFolder.PredictionsFile), data.Ids, data.Labels, probeClasses, scored.Probabilities);
             var tested = new JsonObject { ["run"] = testRun };
-            foreach ((string key, JsonNode? value) in score.ToJson(probe.Classes))
+            foreach ((string key, JsonNode? value) in score.ToJson(probeClasses))
             {
                 tested[key] = value?.DeepClone();
             }
@@ -145,9 +195,48 @@ internal static class ProbeCommand
                 report["majority_baseline"] = new JsonObject { ["class"] = majority, ["accuracy"] = accuracy };
                 o.WriteLine(string.Create(inv, $"majority baseline: {accuracy:P2} (always \"{majority}\", the training set's most frequent class)"));
             }
+            if (types is { } t)
+            {
+                err.WriteLine($"assay: fitting the control task (type = {methods.ControlKey})");
+                var controlSearch = SearchProgressPrinter.ForConsole(err);
+                ControlFit control = ControlTask.FitControl(trainData!, t.Train, data, t.Test, kind, fitOptions, methods.ControlSeed, controlSearch);
+                controlSearch.End();
+                double selectivity = score.Accuracy - control.Report.Accuracy;
+                report["control"] = new JsonObject
+                {
+                    ["key"] = methods.ControlKey,
+                    ["seed"] = methods.ControlSeed,
+                    ["training_types"] = control.Types,
+                    ["unseen_test_rows"] = control.UnseenTestRows,
+                    ["accuracy"] = control.Report.Accuracy,
+                    ["accuracy_95"] = new JsonArray(control.Report.AccuracyLow, control.Report.AccuracyHigh),
+                    ["log_loss"] = control.Report.LogLoss,
+                    ["selectivity"] = selectivity,
+                };
+                o.WriteLine(string.Create(inv,
+                    $"control task (type = {methods.ControlKey}: {control.Types:N0} types in training, {control.UnseenTestRows:N0} test rows of unseen types): accuracy {control.Report.Accuracy:P2} (95 % bootstrap {control.Report.AccuracyLow:P2} – {control.Report.AccuracyHigh:P2})"));
+                o.WriteLine(string.Create(inv, $"selectivity: {100 * selectivity:F2} points (task {score.Accuracy:P2} − control {control.Report.Accuracy:P2})"));
+            }
+        }
+        if (methods.OnlineCode)
+        {
+            err.WriteLine("assay: measuring the online code");
+            OnlineCodeResult code = OnlineCode.Measure(trainData!.Values, trainData.Rows, trainData.Width, trainData.Labels, kind, chosenC, fitOptions.Seed);
+            report["online_code"] = code.ToJson();
+            o.WriteLine(string.Create(inv,
+                $"online code: {code.CodelengthBits / 1000:F2} kbits for {code.Rows:N0} training labels (uniform code {code.UniformBits / 1000:F2} kbits): compression {code.Compression:F2}"));
         }
         Predictions.WriteJson(Path.Combine(output, ReportFolder.ReportFile), report);
         return 0;
     }
 
 }
+
+/// <summary>What <c>assay probe</c> fits besides the task probe: the MLP instead of the linear probe, a control task, the online code.</summary>
+/// <param name="MlpUnits">0: the linear probe; otherwise the MLP probe's hidden units.</param>
+/// <param name="ControlKey">The control task's type key, or null for none.</param>
+/// <param name="TrainInput">The training run's input, for a key that reads it.</param>
+/// <param name="TestInput">The test run's input, likewise.</param>
+/// <param name="ControlSeed">Seed of the control labels.</param>
+/// <param name="OnlineCode">Measure the online codelength.</param>
+internal sealed record ProbeMethods(int MlpUnits = 0, string? ControlKey = null, string? TrainInput = null, string? TestInput = null, ulong ControlSeed = 1, bool OnlineCode = false);

@@ -47,6 +47,12 @@ public sealed record SelectivityResult(ProbeKind Kind, ClassificationReport Task
     public double Selectivity => Task.Accuracy - Control.Accuracy;
 }
 
+/// <summary>A probe fitted on a control task and scored on the test rows' control labels.</summary>
+/// <param name="Report">Its test score on the control labels.</param>
+/// <param name="Types">Distinct types among the training rows.</param>
+/// <param name="UnseenTestRows">Test rows whose type no training row has (their control label cannot be learned).</param>
+public sealed record ControlFit(ClassificationReport Report, int Types, int UnseenTestRows);
+
 /// <summary>
 /// Control tasks in the sense of Hewitt and Liang (2019): every input type (a key of each row, such as its first word)
 /// gets a fixed label drawn from the task's label distribution, so a probe can score on the control task only by
@@ -191,6 +197,16 @@ public static class ControlTask
     public static SelectivityResult Measure(RunFeatures train, IReadOnlyList<string> trainTypes, RunFeatures test, IReadOnlyList<string> testTypes,
         ProbeKind kind, ProbeOptions options, ulong seed = 1, IProgress<ProbeSearchProgress>? progress = null)
     {
+        ControlFit control = FitControl(train, trainTypes, test, testTypes, kind, options, seed, progress);
+        ClassificationReport task = Score(kind.FitAndPredict(train.Values, train.Rows, train.Width, train.Labels, test.Values, test.Rows, options, false, progress), test.Labels);
+        return new SelectivityResult(kind, task, control.Report, control.Types, control.UnseenTestRows);
+    }
+
+    /// <summary>Fits the probe on the control labels of the training rows' types and scores it on the test rows' control labels.</summary>
+    /// <exception cref="ArgumentException">A type list is not one a row.</exception>
+    public static ControlFit FitControl(RunFeatures train, IReadOnlyList<string> trainTypes, RunFeatures test, IReadOnlyList<string> testTypes,
+        ProbeKind kind, ProbeOptions options, ulong seed = 1, IProgress<ProbeSearchProgress>? progress = null)
+    {
         ArgumentNullException.ThrowIfNull(train);
         ArgumentNullException.ThrowIfNull(test);
         ArgumentNullException.ThrowIfNull(trainTypes);
@@ -202,10 +218,9 @@ public static class ControlTask
         }
         string[] controlTrain = Labels(trainTypes, train.Labels, seed);
         string[] controlTest = Labels(testTypes, train.Labels, seed);
-        ClassificationReport task = Score(kind.FitAndPredict(train.Values, train.Rows, train.Width, train.Labels, test.Values, test.Rows, options, false, progress), test.Labels);
         ClassificationReport control = Score(kind.FitAndPredict(train.Values, train.Rows, train.Width, controlTrain, test.Values, test.Rows, options, true, progress), controlTest);
         HashSet<string> seen = [.. trainTypes];
-        return new SelectivityResult(kind, task, control, seen.Count, testTypes.Count(t => !seen.Contains(t)));
+        return new ControlFit(control, seen.Count, testTypes.Count(t => !seen.Contains(t)));
     }
 
     /// <summary>A report of test probabilities against labels; a label the probe never saw counts as wrong.</summary>

@@ -15,14 +15,26 @@ public static class ProbeScorer
     public static ProbeScore Score(LinearProbe probe, RunFeatures test, string testRun)
     {
         ArgumentNullException.ThrowIfNull(probe);
+        return Score(probe.Classes, probe.Predict, test, testRun);
+    }
+
+    /// <exception cref="RunFolderException">A label of the run is not one of the probe's classes.</exception>
+    public static ProbeScore Score(MlpProbe probe, RunFeatures test, string testRun)
+    {
+        ArgumentNullException.ThrowIfNull(probe);
+        return Score(probe.Classes, probe.Predict, test, testRun);
+    }
+
+    private static ProbeScore Score(IReadOnlyList<string> probeClasses, Func<double[], int, int, double[]> predict, RunFeatures test, string testRun)
+    {
         ArgumentNullException.ThrowIfNull(test);
-        var classes = new LabelIndex(probe.Classes);
+        var classes = new LabelIndex(probeClasses);
         string? unknown = classes.FirstUnknown(test.Labels);
         if (unknown != null)
         {
             throw new RunFolderException(testRun, $"label \"{unknown}\" is not one of the probe's classes (it has no training rows)");
         }
-        double[] p = probe.Predict(test.Values, test.Rows, test.Width);
+        double[] p = predict(test.Values, test.Rows, test.Width);
         int[] truth = classes.Indices(test.Labels);
         return new ProbeScore(p, truth, ClassificationReport.Score(p, truth, classes.Count));
     }
