@@ -50,7 +50,7 @@ public sealed class ControlTaskTests
         (RunFeatures test, string[] testTypes) = Synthetic(300, types, classes, d, byType: true, seed: 2);
         SelectivityResult typeOnly = ControlTask.Measure(train, trainTypes, test, testTypes, kind, options);
         Assert.True(typeOnly.Task.Accuracy > 0.9 && Math.Abs(typeOnly.Selectivity) < 0.1,
-            $"type features: task {typeOnly.Task.Accuracy}, control {typeOnly.Control.Accuracy}");
+            $"type features: task {typeOnly.Task.Accuracy}, control {typeOnly.Control.Report.Accuracy}");
 
         (train, trainTypes) = Synthetic(600, types, classes, d, byType: false, seed: 3);
         (test, testTypes) = Synthetic(300, types, classes, d, byType: false, seed: 4);
@@ -58,8 +58,10 @@ public sealed class ControlTaskTests
         // The control labels follow the task's balanced distribution: chance is 1/4, and a probe that cannot see the
         // type cannot beat it by more than noise.
         Assert.True(labelOnly.Task.Accuracy > 0.9 && Math.Abs(labelOnly.Selectivity - (labelOnly.Task.Accuracy - 0.25)) < 0.1,
-            $"label features: task {labelOnly.Task.Accuracy}, control {labelOnly.Control.Accuracy}");
-        Assert.Equal(types, labelOnly.Types);
+            $"label features: task {labelOnly.Task.Accuracy}, control {labelOnly.Control.Report.Accuracy}");
+        Assert.Equal(types, labelOnly.Control.Types);
+        // Every test type was seen in training: a lookup table of the control labels is always right.
+        Assert.Equal((0, 1.0), (labelOnly.Control.UnseenTestRows, labelOnly.Control.LookupAccuracy));
         Assert.Equal(kind, labelOnly.Kind);
     }
 

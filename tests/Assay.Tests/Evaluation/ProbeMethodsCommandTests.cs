@@ -44,6 +44,7 @@ public sealed class ProbeMethodsCommandTests
         JsonElement c = r.GetProperty("control");
         Assert.Equal(control.Report.Accuracy, c.GetProperty("accuracy").GetDouble());
         Assert.Equal(control.Types, c.GetProperty("training_types").GetInt32());
+        Assert.Equal(control.LookupAccuracy, c.GetProperty("lookup_accuracy").GetDouble());
         Assert.Equal(r.GetProperty("test").GetProperty("accuracy").GetDouble() - control.Report.Accuracy, c.GetProperty("selectivity").GetDouble(), 15);
         Assert.Contains("selectivity: ", o.ToString(), StringComparison.Ordinal);
 

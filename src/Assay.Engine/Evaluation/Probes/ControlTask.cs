@@ -38,20 +38,23 @@ public readonly record struct ProbeKind(int HiddenUnits)
 /// <summary>What a control task measures: the probe on the task, the same probe on the control labels, and their difference.</summary>
 /// <param name="Kind">The probe.</param>
 /// <param name="Task">Its test score on the task's labels.</param>
-/// <param name="Control">Its test score on the control labels.</param>
-/// <param name="Types">Distinct types among the training rows.</param>
-/// <param name="UnseenTestRows">Test rows whose type no training row has (their control label cannot be learned).</param>
-public sealed record SelectivityResult(ProbeKind Kind, ClassificationReport Task, ClassificationReport Control, int Types, int UnseenTestRows)
+/// <param name="Control">The same probe on the control task.</param>
+public sealed record SelectivityResult(ProbeKind Kind, ClassificationReport Task, ControlFit Control)
 {
     /// <summary>Task accuracy − control accuracy.</summary>
-    public double Selectivity => Task.Accuracy - Control.Accuracy;
+    public double Selectivity => Task.Accuracy - Control.Report.Accuracy;
 }
 
 /// <summary>A probe fitted on a control task and scored on the test rows' control labels.</summary>
 /// <param name="Report">Its test score on the control labels.</param>
 /// <param name="Types">Distinct types among the training rows.</param>
 /// <param name="UnseenTestRows">Test rows whose type no training row has (their control label cannot be learned).</param>
-public sealed record ControlFit(ClassificationReport Report, int Types, int UnseenTestRows);
+/// <param name="LookupAccuracy">
+/// The control task's ceiling for a probe that memorizes types: the test accuracy of a table of each training type's
+/// control label, with the most frequent training control label for unseen types. Read the control accuracy against
+/// it: a skewed type distribution (one first word on a third of the rows) makes the control task easy to memorize.
+/// </param>
+public sealed record ControlFit(ClassificationReport Report, int Types, int UnseenTestRows, double LookupAccuracy);
 
 /// <summary>
 /// Control tasks in the sense of Hewitt and Liang (2019): every input type (a key of each row, such as its first word)
@@ -199,7 +202,7 @@ public static class ControlTask
     {
         ControlFit control = FitControl(train, trainTypes, test, testTypes, kind, options, seed, progress);
         ClassificationReport task = Score(kind.FitAndPredict(train.Values, train.Rows, train.Width, train.Labels, test.Values, test.Rows, options, false, progress), test.Labels);
-        return new SelectivityResult(kind, task, control.Report, control.Types, control.UnseenTestRows);
+        return new SelectivityResult(kind, task, control);
     }
 
     /// <summary>Fits the probe on the control labels of the training rows' types and scores it on the test rows' control labels.</summary>
@@ -220,7 +223,13 @@ public static class ControlTask
         string[] controlTest = Labels(testTypes, train.Labels, seed);
         ClassificationReport control = Score(kind.FitAndPredict(train.Values, train.Rows, train.Width, controlTrain, test.Values, test.Rows, options, true, progress), controlTest);
         HashSet<string> seen = [.. trainTypes];
-        return new ControlFit(control, seen.Count, testTypes.Count(t => !seen.Contains(t)));
+        string majority = controlTrain.GroupBy(l => l, StringComparer.Ordinal).OrderByDescending(g => g.Count()).ThenBy(g => g.Key, StringComparer.Ordinal).First().Key;
+        int lookupHits = 0;
+        for (int i = 0; i < testTypes.Count; i++)
+        {
+            lookupHits += (seen.Contains(testTypes[i]) ? controlTest[i] : majority) == controlTest[i] ? 1 : 0;
+        }
+        return new ControlFit(control, seen.Count, testTypes.Count(t => !seen.Contains(t)), lookupHits / (double)testTypes.Count);
     }
 
     /// <summary>A report of test probabilities against labels; a label the probe never saw counts as wrong.</summary>
