@@ -14,8 +14,8 @@ internal static class CompareCommand
 {
     public static Command Create()
     {
-        var a = new Argument<DirectoryInfo>("a") { Description = "A report folder written by assay probe or assay zero-shot (its predictions.csv)." };
-        var b = new Argument<DirectoryInfo>("b") { Description = "Another, scored on the same test rows." };
+        var a = new Argument<FileSystemInfo>("a") { Description = "A report folder written by assay probe or assay zero-shot (its predictions.csv), or a predictions file (a layer sweep's predictions.layerK.csv)." };
+        var b = new Argument<FileSystemInfo>("b") { Description = "Another, scored on the same test rows." };
         var resamples = new Option<int>("--resamples") { Description = "Paired bootstrap resamples.", DefaultValueFactory = _ => 1000 };
         var seed = new Option<ulong>("--seed") { Description = "Seed of the resampling.", DefaultValueFactory = _ => 1 };
         var json = new Option<bool>("--json") { Description = "Write one JSON object instead of the text." };
@@ -33,8 +33,8 @@ internal static class CompareCommand
         {
             throw new ArgumentException($"--resamples {resamples}: expected a positive number");
         }
-        PredictionTable pa = PredictionTable.Read(Path.Combine(a, ReportFolder.PredictionsFile));
-        PredictionTable pb = PredictionTable.Read(Path.Combine(b, ReportFolder.PredictionsFile));
+        PredictionTable pa = PredictionTable.Read(PredictionsPath(a));
+        PredictionTable pb = PredictionTable.Read(PredictionsPath(b));
         (double[] pbAligned, int[] truth) = Align(a, pa, b, pb);
         PairedComparison c = PairedComparison.Compare(pa.Probabilities, pbAligned, truth, pa.Classes.Count, resamples, seed);
         if (json)
@@ -102,9 +102,16 @@ internal static class CompareCommand
         return (aligned, truth);
     }
 
-    /// <summary>What the report folder's report.json says was scored, when it says it.</summary>
+    /// <summary>A report folder's predictions file, or the file itself.</summary>
+    private static string PredictionsPath(string path) => Directory.Exists(path) ? Path.Combine(path, ReportFolder.PredictionsFile) : path;
+
+    /// <summary>What the report folder's report.json says was scored, when it says it (nothing for a file named directly).</summary>
     private static string Describe(string folder)
     {
+        if (!Directory.Exists(folder))
+        {
+            return "";
+        }
         string path = Path.Combine(folder, ReportFolder.ReportFile);
         try
         {

@@ -21,7 +21,7 @@ internal static class MergeCommand
     {
         CultureInfo inv = CultureInfo.InvariantCulture;
         DateTime last = DateTime.UtcNow;
-        var progress = new SynchronousProgress(rows =>
+        var progress = new SynchronousProgress<long>(rows =>
         {
             if ((DateTime.UtcNow - last).TotalSeconds >= 10)
             {
@@ -42,11 +42,5 @@ internal static class MergeCommand
         o.WriteLine($"run folder  {output}");
         o.WriteLine(string.Create(inv, $"merged      {s.Shards} shards: {s.Rows:N0} rows, {s.Rejected:N0} rejected, {s.Files} feature files (provenance in {RunFolder.MergeFile})"));
         return 0;
-    }
-
-    /// <summary>Reports on the calling thread (Progress&lt;T&gt; would post to the thread pool).</summary>
-    private sealed class SynchronousProgress(Action<long> report) : IProgress<long>
-    {
-        public void Report(long value) => report(value);
     }
 }

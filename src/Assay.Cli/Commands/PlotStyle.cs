@@ -10,6 +10,9 @@ namespace Assay.Cli.Commands;
 /// </summary>
 internal static class PlotStyle
 {
+    /// <summary>A font every Debian 12 machine with fonts-dejavu-core has, so the plots look the same everywhere.</summary>
+    public const string FontName = "DejaVu Sans";
+
     private static readonly Color[] Colours =
     [
         Color.FromHex("#1D3F6E"),   // ink blue (dark)

@@ -31,15 +31,16 @@ internal static class ProbeCommand
         var trainInput = new Option<FileInfo>("--train-input") { Description = "The training run's input file (checked by its SHA-256), for a --control key that reads the text or a field." };
         var testInput = new Option<FileInfo>("--test-input") { Description = "The test run's input file, likewise." };
         var controlSeed = new Option<ulong>("--control-seed") { Description = "Seed of the control labels.", DefaultValueFactory = _ => 1 };
+        var layers = new Option<string>("--layers") { Description = "Sweep layers: fit and score one probe per layer of a run extracted with hidden:all (all, or indices such as 0,2,-1), in the pooling --feature names; writes layers.csv, layers.png and each layer's predictions." };
         var online = new Option<bool>("--online-code") { Description = "Also measure the online codelength of the training labels (MDL probing at the published block fractions), with the chosen C." };
         var command = new Command("probe", "Fit a linear probe (standardized multinomial logistic regression, C by cross-validation) on run-folder features, or apply a saved one, and report accuracy, log loss, macro-F1 and the confusion matrix; optionally an MLP probe, a control task's selectivity and the online codelength.")
         {
-            train, saved, test, feature, output, folds, strengths, allow, overwrite, mlp, control, trainInput, testInput, controlSeed, online,
+            train, saved, test, feature, output, folds, strengths, allow, overwrite, mlp, control, trainInput, testInput, controlSeed, online, layers,
         };
         command.SetAction(r => CommandRunner.Run(() => Run(
             r.GetValue(train)?.FullName, r.GetValue(saved)?.FullName, r.GetValue(test)?.FullName, r.GetValue(feature)!,
             r.GetValue(output)!.FullName, r.GetValue(folds), r.GetValue(strengths)!, Console.Out, r.GetValue(allow), r.GetValue(overwrite), Console.Error,
-            new ProbeMethods(r.GetValue(mlp), r.GetValue(control), r.GetValue(trainInput)?.FullName, r.GetValue(testInput)?.FullName, r.GetValue(controlSeed), r.GetValue(online)))));
+            new ProbeMethods(r.GetValue(mlp), r.GetValue(control), r.GetValue(trainInput)?.FullName, r.GetValue(testInput)?.FullName, r.GetValue(controlSeed), r.GetValue(online), r.GetValue(layers)))));
         return command;
     }
 
@@ -81,6 +82,14 @@ internal static class ProbeCommand
         {
             throw new ArgumentException("--control scores the control task on test rows: give --test RUN too");
         }
+        if (methods.Layers != null && (trainRun == null || testRun == null))
+        {
+            throw new ArgumentException("--layers fits and scores a probe per layer: give --train RUN and --test RUN");
+        }
+        if (methods.Layers != null && methods.OnlineCode)
+        {
+            throw new ArgumentException("--online-code measures one feature; give it without --layers, once per layer of interest");
+        }
         if (methods.ControlKey == null && (methods.TrainInput != null || methods.TestInput != null))
         {
             throw new ArgumentException("--train-input and --test-input are read for --control; give --control KEY");
@@ -119,6 +128,16 @@ internal static class ProbeCommand
         }
         (string[] Train, string[] Test)? types = methods.ControlKey == null ? null
             : (ControlTask.Types(trainRun!, methods.ControlKey, methods.TrainInput), ControlTask.Types(testRun!, methods.ControlKey, methods.TestInput));
+        if (methods.Layers != null)
+        {
+            IReadOnlyList<(int Layer, string Stem)> stems = LayerSweep.Stems(trainRun!, stem, methods.Layers);
+            foreach ((_, string layerStem) in stems)
+            {
+                RunFeatures.Resolve(testRun!, layerStem);
+            }
+            using Assay.Output.FolderLock sweepLock = ReportFolder.Claim(output, overwrite);
+            return ProbeSweepReport.Run(trainRun!, testRun!, stem, stems, kind, fitOptions, types, methods, difference, output, o, err);
+        }
         using Assay.Output.FolderLock folderLock = ReportFolder.Claim(output, overwrite);
 
         LinearProbe? probe = null;
@@ -152,8 +171,8 @@ internal static class ProbeCommand
             search.End();
             trainLabels = [.. trainData.Labels];
             report["train"] = new JsonObject { ["run"] = trainRun, ["rows"] = trainData.Rows, ["width"] = trainData.Width };
-            string what = kind.HiddenUnits == 0 ? "linear probe" : $"MLP probe ({kind.HiddenUnits} tanh units; not saved)";
-            o.WriteLine(string.Create(inv, $"fitted a {what} on {trainData.Rows:N0} rows × {trainData.Width} features of {stem}, {classes.Count} classes; C = {chosenC:G4} by {folds}-fold cross-validation"));
+            string what = kind.HiddenUnits == 0 ? "a linear probe" : $"an MLP probe ({kind.HiddenUnits} tanh units; not saved)";
+            o.WriteLine(string.Create(inv, $"fitted {what} on {trainData.Rows:N0} rows × {trainData.Width} features of {stem}, {classes.Count} classes; C = {chosenC:G4} by {folds}-fold cross-validation"));
             o.WriteLine("         C   cv log loss   cv accuracy");
             foreach ((double c, double loss, double accuracy) in tried)
             {
@@ -240,4 +259,6 @@ internal static class ProbeCommand
 /// <param name="TestInput">The test run's input, likewise.</param>
 /// <param name="ControlSeed">Seed of the control labels.</param>
 /// <param name="OnlineCode">Measure the online codelength.</param>
-internal sealed record ProbeMethods(int MlpUnits = 0, string? ControlKey = null, string? TrainInput = null, string? TestInput = null, ulong ControlSeed = 1, bool OnlineCode = false);
+/// <param name="Layers">Sweep these layers ("all" or indices), or null for the one feature.</param>
+internal sealed record ProbeMethods(int MlpUnits = 0, string? ControlKey = null, string? TrainInput = null, string? TestInput = null, ulong ControlSeed = 1,
+    bool OnlineCode = false, string? Layers = null);

@@ -9,9 +9,6 @@ namespace Assay.Cli.Commands;
 /// <summary>The study's tables (Markdown, CSV) and plots (PNG, drawn with ScottPlot).</summary>
 internal static class StudyReport
 {
-    /// <summary>A font every Debian 12 machine with fonts-dejavu-core has, so the plots look the same everywhere.</summary>
-    private const string FontName = "DejaVu Sans";
-
     private static readonly CultureInfo Inv = CultureInfo.InvariantCulture;
 
     public static void Write(StudyResult r, string folder, string markdown)
@@ -113,7 +110,7 @@ internal static class StudyReport
     private static Plot AccuracyPlot(StudyResult r, string prompt)
     {
         var plot = new Plot();
-        plot.Font.Set(FontName);
+        plot.Font.Set(PlotStyle.FontName);
         int models = r.Models.Count;
         var ticks = new List<Tick>();
         for (int f = 0; f < r.Spec.Features.Count; f++)
@@ -169,7 +166,7 @@ internal static class StudyReport
     private static Plot LossPlot(StudyResult r, string prompt)
     {
         var plot = new Plot();
-        plot.Font.Set(FontName);
+        plot.Font.Set(PlotStyle.FontName);
         int i = 0;
         foreach (StudyCurve c in r.Curves.Where(c => c.Prompt == prompt))
         {

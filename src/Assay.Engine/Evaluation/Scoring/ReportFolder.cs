@@ -1,7 +1,8 @@
 namespace Assay.Evaluation;
 
 /// <summary>
-/// The folder a probe or zero-shot scoring writes (probe.json, report.json, predictions.csv), under the rule of run
+/// The folder a probe, a layer sweep or zero-shot scoring writes (probe.json, report.json, predictions.csv; a sweep's
+/// layers.csv, layers.png and predictions.layerK.csv), under the rule of run
 /// folders: a new or empty folder is used; one that holds an earlier report is replaced only when asked; one that
 /// holds anything else is never written to.
 /// </summary>
@@ -15,6 +16,19 @@ public static class ReportFolder
 
     /// <summary>One row per scored text: id, label, predicted label, probabilities.</summary>
     public const string PredictionsFile = "predictions.csv";
+
+    /// <summary>A layer sweep's table: one row per layer.</summary>
+    public const string LayersTable = "layers.csv";
+
+    /// <summary>A layer sweep's plot: test accuracy against layer.</summary>
+    public const string LayersPlot = "layers.png";
+
+    /// <summary>A layer sweep's predictions of layer <paramref name="layer"/>, as <see cref="PredictionsFile"/>.</summary>
+    public static string LayerPredictionsFile(int layer) => string.Create(System.Globalization.CultureInfo.InvariantCulture, $"predictions.layer{layer}.csv");
+
+    private static bool IsReportFile(string name) => name is ProbeFile or ReportFile or PredictionsFile or LayersTable or LayersPlot
+        || (name.StartsWith("predictions.layer", StringComparison.Ordinal) && name.EndsWith(".csv", StringComparison.Ordinal)
+            && int.TryParse(name.AsSpan(17, name.Length - 21), System.Globalization.NumberStyles.None, System.Globalization.CultureInfo.InvariantCulture, out _));
 
     /// <summary>Checks, without touching it, that <see cref="Claim"/> would take <paramref name="folder"/>.</summary>
     /// <exception cref="Output.RunFolderException">As <see cref="Claim"/>.</exception>
@@ -52,7 +66,7 @@ public static class ReportFolder
     private static string[] Check(string folder, bool overwrite)
     {
         string[] names = [.. Directory.EnumerateFileSystemEntries(folder).Select(e => Path.GetFileName(e)!).Where(n => !Output.FolderLock.IsLockFile(n))];
-        string[] foreign = [.. names.Where(n => n is not (ProbeFile or ReportFile or PredictionsFile) && !n.EndsWith(Output.AtomicFile.TemporarySuffix, StringComparison.Ordinal))];
+        string[] foreign = [.. names.Where(n => !IsReportFile(n) && !n.EndsWith(Output.AtomicFile.TemporarySuffix, StringComparison.Ordinal))];
         if (foreign.Length > 0)
         {
             throw new Output.RunFolderException(folder, $"holds files that are not part of a report ({string.Join(", ", foreign.Take(3))}); give an empty or new folder");
