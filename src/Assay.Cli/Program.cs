@@ -2,7 +2,7 @@ using System.CommandLine;
 using Assay.Cli.Commands;
 using Assay.Kernels;
 
-var root = new RootCommand("assay: run GPT-2-family language models from safetensors checkpoints on the CPU and extract what they compute.");
+var root = new RootCommand("assay: run GPT-2, Llama, Mistral, Qwen2 and NeoX-style language models from safetensors checkpoints on the CPU, extract what they compute, and probe it.");
 root.Subcommands.Add(InspectCommand.Create());
 root.Subcommands.Add(NextCommand.Create());
 root.Subcommands.Add(TokenizeCommand.Create());

@@ -30,6 +30,11 @@ internal static class ProbeSweepReport
         int best = results.OrderByDescending(r => r.Test.Accuracy).ThenBy(r => r.Layer).First().Layer;
         o.WriteLine(string.Create(Inv, $"best test accuracy: layer {best} ({results.Single(r => r.Layer == best).Test.Accuracy:P2}); the choice is made on the test rows, so read it as a description, not a held-out score"));
 
+        if (results[0].Control is { } c)
+        {
+            o.WriteLine(string.Create(Inv,
+                $"control task (type = {methods.ControlKey}: {c.Types:N0} types in training, {c.UnseenTestRows:N0} test rows of unseen types): always its most frequent label scores {c.MajorityAccuracy:P2}, a lookup table of the training types {c.LookupAccuracy:P2}"));
+        }
         RunFeatures test = RunFeatures.Load(testRun, stems[0].Stem);
         foreach (LayerResult r in results)
         {
@@ -84,6 +89,7 @@ internal static class ProbeSweepReport
                 ["accuracy_95"] = new JsonArray(c.Report.AccuracyLow, c.Report.AccuracyHigh),
                 ["log_loss"] = c.Report.LogLoss,
                 ["lookup_accuracy"] = c.LookupAccuracy,
+                ["majority_accuracy"] = c.MajorityAccuracy,
                 ["selectivity"] = r.Test.Accuracy - c.Report.Accuracy,
             };
         }

@@ -45,6 +45,8 @@ public sealed class ProbeMethodsCommandTests
         Assert.Equal(control.Report.Accuracy, c.GetProperty("accuracy").GetDouble());
         Assert.Equal(control.Types, c.GetProperty("training_types").GetInt32());
         Assert.Equal(control.LookupAccuracy, c.GetProperty("lookup_accuracy").GetDouble());
+        Assert.Equal(control.MajorityAccuracy, c.GetProperty("majority_accuracy").GetDouble());
+        Assert.InRange(control.MajorityAccuracy, 0, control.LookupAccuracy);
         Assert.Equal(r.GetProperty("test").GetProperty("accuracy").GetDouble() - control.Report.Accuracy, c.GetProperty("selectivity").GetDouble(), 15);
         Assert.Contains("selectivity: ", o.ToString(), StringComparison.Ordinal);
 

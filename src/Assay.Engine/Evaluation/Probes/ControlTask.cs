@@ -54,7 +54,8 @@ public sealed record SelectivityResult(ProbeKind Kind, ClassificationReport Task
 /// control label, with the most frequent training control label for unseen types. Read the control accuracy against
 /// it: a skewed type distribution (one first word on a third of the rows) makes the control task easy to memorize.
 /// </param>
-public sealed record ControlFit(ClassificationReport Report, int Types, int UnseenTestRows, double LookupAccuracy);
+/// <param name="MajorityAccuracy">The control task's floor: the test accuracy of always the most frequent training control label.</param>
+public sealed record ControlFit(ClassificationReport Report, int Types, int UnseenTestRows, double LookupAccuracy, double MajorityAccuracy);
 
 /// <summary>
 /// Control tasks in the sense of Hewitt and Liang (2019): every input type (a key of each row, such as its first word)
@@ -224,12 +225,13 @@ public static class ControlTask
         ClassificationReport control = Score(kind.FitAndPredict(train.Values, train.Rows, train.Width, controlTrain, test.Values, test.Rows, options, true, progress), controlTest);
         HashSet<string> seen = [.. trainTypes];
         string majority = controlTrain.GroupBy(l => l, StringComparer.Ordinal).OrderByDescending(g => g.Count()).ThenBy(g => g.Key, StringComparer.Ordinal).First().Key;
-        int lookupHits = 0;
+        int lookupHits = 0, majorityHits = 0;
         for (int i = 0; i < testTypes.Count; i++)
         {
             lookupHits += (seen.Contains(testTypes[i]) ? controlTest[i] : majority) == controlTest[i] ? 1 : 0;
+            majorityHits += controlTest[i] == majority ? 1 : 0;
         }
-        return new ControlFit(control, seen.Count, testTypes.Count(t => !seen.Contains(t)), lookupHits / (double)testTypes.Count);
+        return new ControlFit(control, seen.Count, testTypes.Count(t => !seen.Contains(t)), lookupHits / (double)testTypes.Count, majorityHits / (double)testTypes.Count);
     }
 
     /// <summary>A report of test probabilities against labels; a label the probe never saw counts as wrong.</summary>
