@@ -22,6 +22,10 @@ internal static class StudyReport
             {
                 LossPlot(r, prompt).SavePng(Path.Combine(folder, StudyFolder.LossPlot(prompt)), 1000, 560);
             }
+            if (r.Layers.Any(c => c.Prompt == prompt))
+            {
+                LayersPlot(r, prompt).SavePng(Path.Combine(folder, StudyFolder.LayersPlot(prompt)), 1000, 520);
+            }
         }
     }
 
@@ -55,7 +59,50 @@ internal static class StudyReport
                 s.Append("\n\\* x₀ at its bound, the smallest cross-entropy: the points want a curve steeper there than a square root allows.\n");
             }
         }
+        Probing(s, r);
         return s.ToString();
+    }
+
+    /// <summary>The layer sweep, selectivity and paired comparison tables, for the methods the study asked for.</summary>
+    private static void Probing(StringBuilder s, StudyResult r)
+    {
+        if (r.Layers.Count > 0)
+        {
+            int deepest = r.Layers.Max(c => int.Parse(c.Feature["layer:".Length..], Inv));
+            s.Append("\nTest accuracy by layer (the last token's hidden state; 0 = embeddings; **bold**: each row's best, chosen on the test rows):\n\n")
+                .Append("| model | prompt | ").Append(string.Join(" | ", Enumerable.Range(0, deepest + 1).Select(k => k.ToString(Inv)))).Append(" |\n")
+                .Append("|---|---|").Append(string.Concat(Enumerable.Range(0, deepest + 1).Select(_ => "---:|"))).Append('\n');
+            foreach (IGrouping<(string Model, string Prompt), StudyCell> row in r.Layers.GroupBy(c => (c.Model, c.Prompt)))
+            {
+                double best = row.Max(c => c.Score.Accuracy);
+                s.Append(Inv, $"| {row.Key.Model} | {row.Key.Prompt} | ");
+                s.Append(string.Join(" | ", Enumerable.Range(0, deepest + 1).Select(k =>
+                    row.FirstOrDefault(c => c.Feature == string.Create(Inv, $"layer:{k}")) is { } c
+                        ? (c.Score.Accuracy == best ? string.Create(Inv, $"**{c.Score.Accuracy * 100:F1}**") : string.Create(Inv, $"{c.Score.Accuracy * 100:F1}"))
+                        : ""))).Append(" |\n");
+            }
+        }
+        if (r.Selectivity.Count > 0)
+        {
+            s.Append(Inv, $"\nControl task (type = {r.Spec.Control}; labels drawn per type from the training labels' shares), on the last layer's hidden state. ")
+                .Append("Selectivity = task − control accuracy; the floor is always the most frequent control label, the ceiling a lookup table of the training types:\n\n")
+                .Append("| model | prompt | probe | task | control | floor | ceiling | selectivity |\n|---|---|---|---:|---:|---:|---:|---:|\n");
+            foreach (StudySelectivity x in r.Selectivity)
+            {
+                SelectivityResult v = x.Result;
+                s.Append(Inv, $"| {x.Model} | {x.Prompt} | {v.Kind} | {v.Task.Accuracy * 100:F1} | {v.Control.Report.Accuracy * 100:F1} | {v.Control.MajorityAccuracy * 100:F1} | {v.Control.LookupAccuracy * 100:F1} | {v.Selectivity * 100:+0.0;-0.0} |\n");
+            }
+        }
+        if (r.Comparisons.Count > 0)
+        {
+            s.Append("\nPaired comparisons on the same test rows (1,000 paired bootstrap resamples; A − B in accuracy points, 95 % interval, share of resamples A wins):\n\n")
+                .Append("| model | prompt | A | B | A − B | 95 % | A better | log loss A − B |\n|---|---|---|---|---:|---:|---:|---:|\n");
+            foreach (StudyComparison x in r.Comparisons)
+            {
+                PairedComparison v = x.Result;
+                s.Append(Inv, $"| {x.Model} | {x.Prompt} | {x.A} | {x.B} | {v.AccuracyDifference * 100:+0.0;-0.0} | {v.AccuracyLow * 100:+0.0;-0.0} … {v.AccuracyHigh * 100:+0.0;-0.0} | {v.AccuracyABetter * 100:F1} % | {v.LogLossDifference:+0.000;-0.000} |\n");
+            }
+        }
     }
 
     private static void Table(StringBuilder s, StudyResult r, Func<StudyCell, string> value)
@@ -159,6 +206,43 @@ internal static class StudyReport
         plot.YLabel("test accuracy (%)");
         plot.Axes.SetLimitsY(0, 1.3 * r.Cells.Where(c => c.Prompt == prompt).Max(c => c.Score.AccuracyHigh) * 100);
         plot.ShowLegend(Alignment.UpperRight);
+        return plot;
+    }
+
+    /// <summary>Test accuracy against layer, one line per model, with the bootstrap intervals and the majority class.</summary>
+    private static Plot LayersPlot(StudyResult r, string prompt)
+    {
+        var plot = new Plot();
+        plot.Font.Set(PlotStyle.FontName);
+        int series = 0;
+        foreach (StudyModel m in r.Models)
+        {
+            StudyCell[] cells = [.. r.Layers.Where(c => c.Model == m.Name && c.Prompt == prompt)];
+            double[] layers = [.. cells.Select(c => (double)int.Parse(c.Feature["layer:".Length..], Inv))];
+            double[] accuracy = [.. cells.Select(c => 100 * c.Score.Accuracy)];
+            var line = plot.Add.Scatter(layers, accuracy);
+            line.Color = PlotStyle.Colour(series);
+            line.MarkerShape = PlotStyle.Marker(series);
+            line.MarkerSize = 8;
+            line.LegendText = string.Create(Inv, $"{m.Name} (cross-entropy {m.CrossEntropy.NatsPerToken:F2})");
+            plot.Add.Plottable(new ScottPlot.Plottables.ErrorBar(layers, accuracy, [.. layers.Select(_ => 0.0)], [.. layers.Select(_ => 0.0)],
+                [.. cells.Select(c => 100 * (c.Score.AccuracyHigh - c.Score.Accuracy))], [.. cells.Select(c => 100 * (c.Score.Accuracy - c.Score.AccuracyLow))])
+            {
+                Color = PlotStyle.Colour(series),
+            });
+            series++;
+        }
+        var majority = plot.Add.HorizontalLine(r.Prior.Accuracy * 100);
+        majority.LinePattern = LinePattern.Dotted;
+        majority.Color = Colors.Gray;
+        majority.LegendText = string.Create(Inv, $"majority class ({r.Prior.Accuracy * 100:F1} %)");
+        double[] ticks = [.. r.Layers.Select(c => (double)int.Parse(c.Feature["layer:".Length..], Inv)).Distinct().Order()];
+        plot.Axes.Bottom.TickGenerator = new ScottPlot.TickGenerators.NumericManual(ticks, [.. ticks.Select(t => t.ToString(Inv))]);
+        plot.Title($"Test accuracy by layer — prompt \"{r.Spec.Prompts.Single(p => p.Name == prompt).Template}\"");
+        plot.XLabel("layer (0 = embeddings, last = after the final norm)");
+        plot.YLabel("test accuracy (%)");
+        plot.Axes.SetLimitsY(0, Math.Min(100, 1.2 * 100 * r.Layers.Where(c => c.Prompt == prompt).Max(c => c.Score.AccuracyHigh)));
+        plot.ShowLegend(Alignment.LowerRight);
         return plot;
     }
 

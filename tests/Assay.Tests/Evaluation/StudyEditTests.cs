@@ -115,9 +115,4 @@ public sealed class StudyEditTests : IDisposable
     }
 
     private static StudyCell Cell(StudyResult r, string feature) => r.Cells.Single(c => c.Feature == feature);
-
-    private sealed class Sink<T>(List<T> items) : IProgress<T>
-    {
-        public void Report(T value) => items.Add(value);
-    }
 }

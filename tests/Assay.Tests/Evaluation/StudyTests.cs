@@ -38,7 +38,8 @@ public sealed class StudyFixture : IDisposable
               "features": ["hidden", "cmean", "zero-shot"],
               "verbalizer": "{{Path.Combine(cli, "studies", "wordnet-supersense.verbalizer.txt")}}",
               "folds": 3,
-              "strengths": [0.1]
+              "strengths": [0.1],
+              "compare": [["hidden", "cmean"], ["cmean", "zero-shot"]]
             }
             """);
         Folder = _temp.File("out");
@@ -127,6 +128,19 @@ public sealed class StudyTests(StudyFixture study) : IClassFixture<StudyFixture>
             rows++;
         }
         Assert.Equal(r.Cells.Count, rows);
+    }
+
+    [Fact]
+    public void Paired_comparisons_are_the_cells_differences_on_the_same_rows()
+    {
+        StudyResult r = study.Rerun();
+        Assert.Equal(3 * 2, r.Comparisons.Count);
+        StudyComparison paired = r.Comparisons.Single(c => c.Model == "final" && c.A == "hidden");
+        Assert.Equal(Cell(r, "final", "hidden").Score.Accuracy - Cell(r, "final", "cmean").Score.Accuracy, paired.Result.AccuracyDifference, 12);
+        Assert.Equal(Cell(r, "final", "cmean").Score.LogLoss - Cell(r, "final", "zero-shot").Score.LogLoss,
+            r.Comparisons.Single(c => c.Model == "final" && c.B == "zero-shot").Result.LogLossDifference, 9);
+        string md = File.ReadAllText(Path.Combine(study.Folder, StudyFolder.MarkdownFile));
+        Assert.Contains("| final | kind-of | hidden | cmean |", md, StringComparison.Ordinal);
     }
 
     [Theory]

@@ -16,7 +16,7 @@ namespace Assay.Evaluation;
 /// after a partial run keeps the cells whose inputs did not change. A folder made from another study file is refused
 /// unless overwrite is asked for.
 /// </summary>
-public static class Study
+public static partial class Study
 {
     private static readonly JsonSerializerOptions Indented = new() { WriteIndented = true };
 
@@ -52,9 +52,15 @@ public static class Study
         var dataInputs = new JsonObject { ["train"] = FileDigest.Sha256(trainFile), ["test"] = FileDigest.Sha256(testFile) };
         string? verbalizerSha = spec.Verbalizer == null ? null : FileDigest.Sha256(spec.Verbalizer);
 
-        var steps = new StepTracker(progress, spec.Models.Count * (1 + (spec.Prompts.Count * (2 + spec.Features.Count))));
+        int probingSteps = spec.Models.Sum(m => spec.Prompts.Count * (
+            (spec.Layers ? Config.ModelConfig.Load(Path.Combine(m.Folder, Config.ModelConfig.FileName)).Layers + 1 : 0)
+            + (spec.Control == null ? 0 : spec.Mlp > 0 ? 2 : 1)));
+        var steps = new StepTracker(progress, (spec.Models.Count * (1 + (spec.Prompts.Count * (2 + spec.Features.Count)))) + probingSteps);
         var models = new List<StudyModel>();
         var results = new List<StudyCell>();
+        var layerCells = new List<StudyCell>();
+        var selectivity = new List<StudySelectivity>();
+        var comparisons = new List<StudyComparison>();
         LabelIndex classes = LabelIndex.Sorted(ReadRecords(trainFile).Select(r => r.Label));
         foreach ((string name, string folder) in spec.Models)
         {
@@ -116,19 +122,36 @@ public static class Study
                         },
                     };
                     string cellFile = Path.Combine(cells, $"{name}.{prompt}.{feature.Replace(':', '_')}.json");
+                    string predictions = PredictionsFile(cells, name, prompt, feature);
                     StudyCell cell = Cached(cellFile, cellInputs,
                         () => zeroShot
-                            ? ZeroShot(name, prompt, Path.Combine(runs, "test"), Stem(request, model), verbalizer!, classes)
-                            : Probe(name, prompt, feature, request, model, Path.Combine(runs, "train"), Path.Combine(runs, "test"), spec.Probe,
-                                steps.Relay<ProbeSearchProgress>(p => (p.Done, p.Count, "C values", 0))),
-                        c => WriteCell(c, classes.Classes), ReadCell, out bool kept);
+                            ? ZeroShot(name, prompt, Path.Combine(runs, "test"), Stem(request, model), verbalizer!, classes, predictions)
+                            : Probe(name, prompt, feature, Stem(request, model), Path.Combine(runs, "train"), Path.Combine(runs, "test"), spec.Probe,
+                                steps.Relay<ProbeSearchProgress>(p => (p.Done, p.Count, "C values", 0)), predictions),
+                        c => WriteCell(c, classes.Classes), ReadCell, out bool kept, () => File.Exists(predictions));
                     results.Add(cell);
                     log?.Report(string.Create(CultureInfo.InvariantCulture,
                         $"{name}/{prompt}/{feature}: accuracy {cell.Score.Accuracy:P1} ({cell.Score.AccuracyLow:P1} – {cell.Score.AccuracyHigh:P1}), log loss {cell.Score.LogLoss:F3}{(cell.InverseRegularization is double c ? $", C = {c:G3}" : "")}{Kept(kept)}"));
                 }
+                var probing = new Probing(spec, name, prompt, template, modelFiles, dataInputs, classes.Classes, cells, Path.Combine(runs, "train"), Path.Combine(runs, "test"), trainFile, testFile, steps, log);
+                if (spec.Layers)
+                {
+                    layerCells.AddRange(probing.Layers(model.Config.Layers));
+                }
+                if (spec.Control != null)
+                {
+                    selectivity.AddRange(probing.Selectivity());
+                }
+                foreach ((string a, string b) in spec.Compare)
+                {
+                    PairedComparison paired = Paired(PredictionsFile(cells, name, prompt, a), PredictionsFile(cells, name, prompt, b), cells);
+                    comparisons.Add(new StudyComparison(name, prompt, a, b, paired));
+                    log?.Report(string.Create(CultureInfo.InvariantCulture,
+                        $"{name}/{prompt}: {a} − {b} accuracy {100 * paired.AccuracyDifference:+0.0;-0.0} points ({100 * paired.AccuracyLow:+0.0;-0.0} … {100 * paired.AccuracyHigh:+0.0;-0.0}), {a} better in {paired.AccuracyABetter:P0} of {paired.Samples:N0} resamples"));
+                }
             }
         }
-        return new StudyResult(spec, classes.Classes, Prior(classes, trainFile, testFile), models, results, Curves(spec, models, results));
+        return new StudyResult(spec, classes.Classes, Prior(classes, trainFile, testFile), models, results, Curves(spec, models, results), layerCells, selectivity, comparisons);
     }
 
     private static string Kept(bool kept) => kept ? " (kept from an earlier run)" : "";
@@ -224,8 +247,20 @@ public static class Study
         var requests = new List<FeatureRequest>();
         var byFeature = new Dictionary<string, FeatureRequest>(StringComparer.Ordinal);
         int layers = model.Config.Layers;
-        foreach (string feature in spec.Features)
+        // A layer sweep reads every layer's last-token state.
+        foreach (string feature in spec.Layers ? spec.Features.Append(HiddenStateFeature.Name + ":all") : spec.Features)
         {
+            if (feature.EndsWith(":all", StringComparison.Ordinal))
+            {
+                foreach (FeatureRequest layer in FeatureSpec.Parse(feature, layers))
+                {
+                    if (!requests.Exists(r => r.GetType() == layer.GetType() && r.Spec == layer.Spec))
+                    {
+                        requests.Add(layer);
+                    }
+                }
+                continue;
+            }
             // zero-shot reads the verbalizer's word probabilities: the words kind, computed once for both.
             string kind = feature == "zero-shot" ? WordListFeature.ListName : feature;
             FeatureRequest request = FeatureSpec.Parse(kind, layers, _ => verbalizer!.AllWords).Single();
@@ -254,18 +289,34 @@ public static class Study
     /// <summary>The run file a study feature reads: its request's primary output.</summary>
     private static string Stem(FeatureRequest request, LanguageModel model) => request.Outputs(ModelShape.Of(model.Config))[request.PrimaryOutput].Name;
 
-    private static StudyCell Probe(string model, string prompt, string feature, FeatureRequest request, LanguageModel languageModel,
-        string trainRun, string testRun, ProbeOptions options, IProgress<ProbeSearchProgress> progress)
+    private static StudyCell Probe(string model, string prompt, string feature, string stem,
+        string trainRun, string testRun, ProbeOptions options, IProgress<ProbeSearchProgress> progress, string predictions)
     {
-        string stem = Stem(request, languageModel);
         RunFeatures train = RunFeatures.Load(trainRun, stem), test = RunFeatures.Load(testRun, stem);
         LinearProbe probe = LinearProbe.Fit(train.Values, train.Rows, train.Width, train.Labels, options, progress);
-        ClassificationReport score = ProbeScorer.Score(probe, test, testRun).Report;
-        return new StudyCell(model, prompt, feature, train.Width, train.Rows, probe.InverseRegularization, score);
+        ProbeScore score = ProbeScorer.Score(probe, test, testRun);
+        PredictionTable.Write(predictions, test.Ids, test.Labels, probe.Classes, score.Probabilities);
+        return new StudyCell(model, prompt, feature, train.Width, train.Rows, probe.InverseRegularization, score.Report);
+    }
+
+    /// <summary>A cell's test predictions beside its score: cells/MODEL.PROMPT.FEATURE.predictions.csv.</summary>
+    private static string PredictionsFile(string cells, string model, string prompt, string feature) =>
+        Path.Combine(cells, $"{model}.{prompt}.{feature.Replace(':', '_')}.predictions.csv");
+
+    /// <summary>The paired bootstrap of two cells' predictions (the same test rows, the same classes: the study's).</summary>
+    private static PairedComparison Paired(string a, string b, string cells)
+    {
+        PredictionTable pa = PredictionTable.Read(a), pb = PredictionTable.Read(b);
+        if (!pa.Ids.SequenceEqual(pb.Ids, StringComparer.Ordinal) || !pa.Classes.SequenceEqual(pb.Classes, StringComparer.Ordinal))
+        {
+            throw new StudyException(cells, $"{Path.GetFileName(a)} and {Path.GetFileName(b)} do not score the same rows and classes; remove them to have them scored again");
+        }
+        var index = new LabelIndex(pa.Classes);
+        return PairedComparison.Compare(pa.Probabilities, pb.Probabilities, index.Indices(pa.Labels), pa.Classes.Count);
     }
 
     /// <summary>The verbalizer's label distribution (as assay zero-shot reports it), in the probe's class order.</summary>
-    private static StudyCell ZeroShot(string model, string prompt, string testRun, string stem, Verbalizer verbalizer, LabelIndex classes)
+    private static StudyCell ZeroShot(string model, string prompt, string testRun, string stem, Verbalizer verbalizer, LabelIndex classes, string predictions)
     {
         if (!verbalizer.Labels.Order(StringComparer.Ordinal).SequenceEqual(classes.Classes, StringComparer.Ordinal))
         {
@@ -289,6 +340,7 @@ public static class Study
             }
             scorer.Add(row, truth[i]);
         }
+        PredictionTable.Write(predictions, test.Ids, test.Labels, classes.Classes, scorer.Probabilities());
         return new StudyCell(model, prompt, "zero-shot", 0, 0, null, scorer.Report());
     }
 
@@ -429,9 +481,11 @@ public static class Study
     }
 
     /// <summary>A part read back when its file holds the same inputs, else computed and written with them.</summary>
-    private static T Cached<T>(string path, JsonObject inputs, Func<T> compute, Func<T, JsonObject> write, Func<JsonObject, T> read, out bool kept)
+    /// <remarks><paramref name="complete"/>, when given, says whether the files computed beside the part are all there too.</remarks>
+    private static T Cached<T>(string path, JsonObject inputs, Func<T> compute, Func<T, JsonObject> write, Func<JsonObject, T> read, out bool kept,
+        Func<bool>? complete = null)
     {
-        if (File.Exists(path) && ReadJson(path) is JsonObject stored && JsonNode.DeepEquals(stored[InputsField], inputs))
+        if (File.Exists(path) && ReadJson(path) is JsonObject stored && JsonNode.DeepEquals(stored[InputsField], inputs) && (complete?.Invoke() ?? true))
         {
             kept = true;
             return read(stored);

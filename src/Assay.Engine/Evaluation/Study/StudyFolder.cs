@@ -3,7 +3,8 @@ namespace Assay.Evaluation;
 /// <summary>
 /// The layout of a study folder, its one owner: the resolved study file, the study's cached parts (the subsampled
 /// task, the extraction runs, the scored cells), and the report files a report writer puts beside them (tables and
-/// one accuracy plot and one loss-against-cross-entropy plot per prompt). Anything else in the folder is foreign.
+/// one accuracy plot, one loss-against-cross-entropy plot and, with a layer sweep, one accuracy-by-layer plot per
+/// prompt). Anything else in the folder is foreign.
 /// </summary>
 public static class StudyFolder
 {
@@ -29,6 +30,8 @@ public static class StudyFolder
 
     private const string LossPrefix = "loss-vs-cross-entropy.";
 
+    private const string LayersPrefix = "layers.";
+
     private const string PlotSuffix = ".png";
 
     /// <summary>The accuracy plot of one prompt.</summary>
@@ -37,9 +40,13 @@ public static class StudyFolder
     /// <summary>The loss-against-cross-entropy plot of one prompt.</summary>
     public static string LossPlot(string prompt) => LossPrefix + prompt + PlotSuffix;
 
+    /// <summary>The accuracy-by-layer plot of one prompt (a study with a layer sweep).</summary>
+    public static string LayersPlot(string prompt) => LayersPrefix + prompt + PlotSuffix;
+
     /// <summary>Whether an entry of this name belongs in a study folder (a part of the study or a report file).</summary>
     internal static bool Owns(string name) =>
         Output.FolderLock.IsLockFile(name) || name is SpecFile or DataFolder or RunsFolder or CellsFolder or MarkdownFile or CsvFile
         || (name.EndsWith(PlotSuffix, StringComparison.Ordinal)
-            && (name.StartsWith(AccuracyPrefix, StringComparison.Ordinal) || name.StartsWith(LossPrefix, StringComparison.Ordinal)));
+            && (name.StartsWith(AccuracyPrefix, StringComparison.Ordinal) || name.StartsWith(LossPrefix, StringComparison.Ordinal)
+                || name.StartsWith(LayersPrefix, StringComparison.Ordinal)));
 }

@@ -7,4 +7,9 @@ namespace Assay.Evaluation;
 /// <param name="Models">Each model with its cross-entropy.</param>
 /// <param name="Cells">Every model × prompt × feature, in that order.</param>
 /// <param name="Curves">Test log loss against cross-entropy for each prompt and probed feature (none with fewer than 3 distinct cross-entropies).</param>
-public sealed record StudyResult(StudySpec Spec, IReadOnlyList<string> Classes, ClassificationReport Prior, IReadOnlyList<StudyModel> Models, IReadOnlyList<StudyCell> Cells, IReadOnlyList<StudyCurve> Curves);
+/// <param name="Layers">With a layer sweep: a cell per model × prompt × layer (feature "layer:K"), in that order.</param>
+/// <param name="Selectivity">With a control task: per model × prompt, the linear probe's and (with mlp) the MLP probe's.</param>
+/// <param name="Comparisons">Per model × prompt, each pair the study file names.</param>
+public sealed record StudyResult(StudySpec Spec, IReadOnlyList<string> Classes, ClassificationReport Prior, IReadOnlyList<StudyModel> Models,
+    IReadOnlyList<StudyCell> Cells, IReadOnlyList<StudyCurve> Curves, IReadOnlyList<StudyCell> Layers, IReadOnlyList<StudySelectivity> Selectivity,
+    IReadOnlyList<StudyComparison> Comparisons);

@@ -25,9 +25,13 @@ public sealed class StudyException : InvalidInputException
 ///   "prompts": { "kind-of": "{text} It is a kind of" },            // name → template
 ///   "features": ["hidden", "cmean", "words", "zero-shot"],
 ///   "verbalizer": "labels.txt",                                    // for words and zero-shot
-///   "folds": 3, "strengths": [0.01, 0.1, 1]                        // the probe's cross-validation
+///   "folds": 3, "strengths": [0.01, 0.1, 1],                       // the probe's cross-validation
+///   "layers": true,                                                // a probe per layer (last token), per model and prompt
+///   "control": "first-word", "mlp": 64,                            // selectivity of the last layer: linear and MLP probes
+///   "compare": [["hidden", "cmean"]]                               // paired bootstraps of two feature kinds
 /// }
 /// </code>
+/// The last four fields are optional (the probing methods; <c>control</c> takes first-word, last-word or id).
 /// Paths are relative to the study file. Feature kinds: <c>hidden</c> (the last layer's state at the last token),
 /// <c>hidden:N</c> (layer N), <c>cmean</c> (Φp), <c>words</c> (a probe on the verbalizer words' next-word
 /// probabilities only) and <c>zero-shot</c> (the verbalizer's label scores, no training).
@@ -64,6 +68,18 @@ public sealed partial record StudySpec
     /// <summary>How the probes are fitted.</summary>
     public ProbeOptions Probe { get; init; } = new();
 
+    /// <summary>Sweep the layers: a probe per layer of the last token's hidden state, per model and prompt.</summary>
+    public bool Layers { get; init; }
+
+    /// <summary>The control task's type key (see <see cref="ControlTask"/>), or null for no selectivity.</summary>
+    public string? Control { get; init; }
+
+    /// <summary>Hidden units of the MLP probe whose selectivity is measured beside the linear probe's (0: linear only).</summary>
+    public int Mlp { get; init; }
+
+    /// <summary>Pairs of feature kinds compared by a paired bootstrap on the same test rows, per model and prompt.</summary>
+    public IReadOnlyList<(string A, string B)> Compare { get; init; } = [];
+
     [GeneratedRegex("^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")]
     private static partial Regex NamePattern();
 
@@ -94,7 +110,7 @@ public sealed partial record StudySpec
             throw new StudyException(path, $"not a JSON object ({e.Message})", e);
         }
         string folder = System.IO.Path.GetDirectoryName(path)!;
-        string known = "train, test, train_every, test_every, models, prompts, features, verbalizer, folds, strengths";
+        string known = "train, test, train_every, test_every, models, prompts, features, verbalizer, folds, strengths, layers, control, mlp, compare";
         string? unknown = o.Select(p => p.Key).FirstOrDefault(k => !known.Split(", ").Contains(k));
         if (unknown != null)
         {
@@ -149,8 +165,49 @@ public sealed partial record StudySpec
             };
         }
 
+        bool layers = o.ContainsKey("layers") && (o["layers"] is JsonValue lv && lv.TryGetValue(out bool l) ? l
+            : throw new StudyException(path, "layers: expected true or false"));
+        string? control = o.ContainsKey("control") ? Text(path, o, "control") : null;
+        if (control != null && control is not ("first-word" or "last-word" or "id"))
+        {
+            throw new StudyException(path, $"control: \"{control}\" is not a type key of a study; expected first-word, last-word or id (the subsampled task keeps id, text and label only; assay probe takes field:NAME)");
+        }
+        if (control != null && !features.Contains("hidden"))
+        {
+            throw new StudyException(path, "control: selectivity is measured on the hidden feature; list \"hidden\" in features");
+        }
+        int mlp = o.ContainsKey("mlp") ? Count(path, o, "mlp", 0) : 0;
+        if (mlp > 0 && control == null)
+        {
+            throw new StudyException(path, "mlp: the MLP probe is fitted for selectivity; give control too");
+        }
+        var compare = new List<(string, string)>();
+        if (o.ContainsKey("compare"))
+        {
+            if (o["compare"] is not JsonArray pairs)
+            {
+                throw new StudyException(path, "compare: expected a list of [feature, feature] pairs");
+            }
+            foreach (JsonNode? pair in pairs)
+            {
+                string[] two = pair is JsonArray pa && pa.Count == 2 && pa.All(f => f is JsonValue v && v.TryGetValue(out string? _))
+                    ? [.. pa.Select(f => f!.GetValue<string>())]
+                    : throw new StudyException(path, "compare: expected a list of [feature, feature] pairs");
+                string? missing = two.FirstOrDefault(f => !features.Contains(f));
+                if (missing != null || two[0] == two[1])
+                {
+                    throw new StudyException(path, missing != null ? $"compare: \"{missing}\" is not one of the features" : $"compare: \"{two[0]}\" is compared with itself");
+                }
+                compare.Add((two[0], two[1]));
+            }
+        }
+
         return new StudySpec
         {
+            Layers = layers,
+            Control = control,
+            Mlp = mlp,
+            Compare = compare,
             Path = path,
             Train = ExistingFile("train"),
             Test = ExistingFile("test"),
@@ -165,7 +222,27 @@ public sealed partial record StudySpec
     }
 
     /// <summary>The study as resolved (absolute paths, and the study file's own), as stored beside the results to tell a rerun, an edited study file and another study apart.</summary>
-    public JsonObject ToJson() => new()
+    public JsonObject ToJson()
+    {
+        JsonObject json = Fields();
+        // The probing methods are stored only when asked for, so a folder made before they existed stays the same study.
+        if (Layers)
+        {
+            json["layers"] = true;
+        }
+        if (Control != null)
+        {
+            json["control"] = Control;
+            json["mlp"] = Mlp;
+        }
+        if (Compare.Count > 0)
+        {
+            json["compare"] = new JsonArray([.. Compare.Select(p => new JsonArray(p.A, p.B))]);
+        }
+        return json;
+    }
+
+    private JsonObject Fields() => new()
     {
         [FileField] = Path,
         ["train"] = Train,
