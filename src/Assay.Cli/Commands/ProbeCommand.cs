@@ -221,19 +221,7 @@ internal static class ProbeCommand
                 ControlFit control = ControlTask.FitControl(trainData!, t.Train, data, t.Test, kind, fitOptions, methods.ControlSeed, controlSearch);
                 controlSearch.End();
                 double selectivity = score.Accuracy - control.Report.Accuracy;
-                report["control"] = new JsonObject
-                {
-                    ["key"] = methods.ControlKey,
-                    ["seed"] = methods.ControlSeed,
-                    ["training_types"] = control.Types,
-                    ["unseen_test_rows"] = control.UnseenTestRows,
-                    ["accuracy"] = control.Report.Accuracy,
-                    ["accuracy_95"] = new JsonArray(control.Report.AccuracyLow, control.Report.AccuracyHigh),
-                    ["log_loss"] = control.Report.LogLoss,
-                    ["lookup_accuracy"] = control.LookupAccuracy,
-                    ["majority_accuracy"] = control.MajorityAccuracy,
-                    ["selectivity"] = selectivity,
-                };
+                report["control"] = control.ToJson(methods.ControlKey!, methods.ControlSeed, score.Accuracy);
                 o.WriteLine(string.Create(inv,
                     $"control task (type = {methods.ControlKey}: {control.Types:N0} types in training, {control.UnseenTestRows:N0} test rows of unseen types): accuracy {control.Report.Accuracy:P2} (95 % bootstrap {control.Report.AccuracyLow:P2} – {control.Report.AccuracyHigh:P2}); always its most frequent label scores {control.MajorityAccuracy:P2}, a lookup table of the training types {control.LookupAccuracy:P2}"));
                 o.WriteLine(string.Create(inv, $"selectivity: {100 * selectivity:F2} points (task {score.Accuracy:P2} − control {control.Report.Accuracy:P2})"));

@@ -79,19 +79,7 @@ internal static class ProbeSweepReport
         };
         if (r.Control is { } c)
         {
-            layer["control"] = new JsonObject
-            {
-                ["key"] = methods.ControlKey,
-                ["seed"] = methods.ControlSeed,
-                ["training_types"] = c.Types,
-                ["unseen_test_rows"] = c.UnseenTestRows,
-                ["accuracy"] = c.Report.Accuracy,
-                ["accuracy_95"] = new JsonArray(c.Report.AccuracyLow, c.Report.AccuracyHigh),
-                ["log_loss"] = c.Report.LogLoss,
-                ["lookup_accuracy"] = c.LookupAccuracy,
-                ["majority_accuracy"] = c.MajorityAccuracy,
-                ["selectivity"] = r.Test.Accuracy - c.Report.Accuracy,
-            };
+            layer["control"] = c.ToJson(methods.ControlKey!, methods.ControlSeed, r.Test.Accuracy);
         }
         return layer;
     }

@@ -55,7 +55,23 @@ public sealed record SelectivityResult(ProbeKind Kind, ClassificationReport Task
 /// it: a skewed type distribution (one first word on a third of the rows) makes the control task easy to memorize.
 /// </param>
 /// <param name="MajorityAccuracy">The control task's floor: the test accuracy of always the most frequent training control label.</param>
-public sealed record ControlFit(ClassificationReport Report, int Types, int UnseenTestRows, double LookupAccuracy, double MajorityAccuracy);
+public sealed record ControlFit(ClassificationReport Report, int Types, int UnseenTestRows, double LookupAccuracy, double MajorityAccuracy)
+{
+    /// <summary>The control task as reports write it: the key and seed, the types, the scores, the floor, the ceiling and the selectivity against <paramref name="taskAccuracy"/>.</summary>
+    public System.Text.Json.Nodes.JsonObject ToJson(string key, ulong seed, double taskAccuracy) => new()
+    {
+        ["key"] = key,
+        ["seed"] = seed,
+        ["training_types"] = Types,
+        ["unseen_test_rows"] = UnseenTestRows,
+        ["accuracy"] = Report.Accuracy,
+        ["accuracy_95"] = new System.Text.Json.Nodes.JsonArray(Report.AccuracyLow, Report.AccuracyHigh),
+        ["log_loss"] = Report.LogLoss,
+        ["lookup_accuracy"] = LookupAccuracy,
+        ["majority_accuracy"] = MajorityAccuracy,
+        ["selectivity"] = taskAccuracy - Report.Accuracy,
+    };
+}
 
 /// <summary>
 /// Control tasks in the sense of Hewitt and Liang (2019): every input type (a key of each row, such as its first word)

@@ -41,21 +41,7 @@ internal sealed class LogisticRegression : IProbeModel
     /// <exception cref="ArgumentException">Shapes disagree, a label is out of range, or C is not positive.</exception>
     public static LogisticRegression Fit(double[] x, int n, int d, int[] y, int classes, double c, int maxIterations = 1000, double tolerance = 1e-8)
     {
-        if (x.Length != (long)n * d || y.Length != n || n == 0)
-        {
-            throw new ArgumentException($"expected {n} × {d} features and {n} labels; got {x.Length} values and {y.Length} labels");
-        }
-        if (c <= 0 || !double.IsFinite(c))
-        {
-            throw new ArgumentException($"C = {c}: expected a positive regularization strength");
-        }
-        foreach (int label in y)
-        {
-            if ((uint)label >= (uint)classes)
-            {
-                throw new ArgumentException($"label {label} is outside 0 … {classes - 1}");
-            }
-        }
+        ProbeFitting.CheckFit(x, n, d, y, classes, c);
 
         int k = classes;
         double scale = 1.0 / n, penalty = 1.0 / (c * n);

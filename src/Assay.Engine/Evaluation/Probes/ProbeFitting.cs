@@ -79,6 +79,27 @@ internal static class ProbeFitting
         return (search.OrderBy(s => s.LogLoss).ThenBy(s => s.C).First().C, search);
     }
 
+    /// <summary>The checks every classifier's fit makes of its arguments.</summary>
+    /// <exception cref="ArgumentException">Shapes disagree, no rows, a label out of range, or C not a positive finite number.</exception>
+    public static void CheckFit(double[] x, int n, int d, int[] y, int classes, double c)
+    {
+        if (x.Length != (long)n * d || y.Length != n || n == 0)
+        {
+            throw new ArgumentException($"expected {n} × {d} features and {n} labels; got {x.Length} values and {y.Length} labels");
+        }
+        if (!(c > 0 && double.IsFinite(c)))
+        {
+            throw new ArgumentException($"C = {c}: expected a positive regularization strength");
+        }
+        foreach (int label in y)
+        {
+            if ((uint)label >= (uint)classes)
+            {
+                throw new ArgumentException($"label {label} is outside 0 … {classes - 1}");
+            }
+        }
+    }
+
     /// <summary>Class probabilities (n × classes) of raw rows, standardized with <paramref name="mean"/> and <paramref name="scale"/>.</summary>
     /// <exception cref="ArgumentException">The rows are not <paramref name="mean"/>'s width.</exception>
     public static double[] Predict(IProbeModel model, int classes, double[] mean, double[] scale, double[] x, int n, int d)

@@ -64,21 +64,8 @@ internal sealed class TwoLayerPerceptron : IProbeModel
     public static TwoLayerPerceptron Fit(double[] x, int n, int d, int[] y, int classes, int hidden, double c, ulong seed,
         double[]? start = null, int maxIterations = 500, double tolerance = 1e-6)
     {
-        if (x.Length != (long)n * d || y.Length != n || n == 0 || hidden < 1)
-        {
-            throw new ArgumentException($"expected {n} × {d} features, {n} labels and a hidden layer; got {x.Length} values, {y.Length} labels, {hidden} units");
-        }
-        if (c <= 0 || !double.IsFinite(c))
-        {
-            throw new ArgumentException($"C = {c}: expected a positive regularization strength");
-        }
-        foreach (int label in y)
-        {
-            if ((uint)label >= (uint)classes)
-            {
-                throw new ArgumentException($"label {label} is outside 0 … {classes - 1}");
-            }
-        }
+        ProbeFitting.CheckFit(x, n, d, y, classes, c);
+        ArgumentOutOfRangeException.ThrowIfLessThan(hidden, 1);
         int count = ParameterCount(d, hidden, classes);
         double[] initial = start ?? InitialParameters(d, hidden, classes, seed);
         if (initial.Length != count)
