@@ -98,6 +98,35 @@ public sealed class StudyProbingTests : IDisposable
     }
 
     [Fact]
+    public void A_series_of_checkpoints_is_one_line_and_gives_the_loss_curve_a_point_per_checkpoint()
+    {
+        // Three checkpoints of one shape with other weights (other seeds), filed under step names out of order.
+        foreach ((string name, ulong seed) in new[] { ("step-30", 3UL), ("step-5", 1UL), ("step-200", 2UL) })
+        {
+            string source = Checkpoints.Folder(Features.FeatureExtractorTests.Spec with { Seed = seed });
+            Directory.CreateDirectory(_t.File("series/" + name));
+            foreach (string file in Directory.GetFiles(source))
+            {
+                File.Copy(file, Path.Combine(_t.File("series/" + name), Path.GetFileName(file)));
+            }
+        }
+        File.WriteAllText(_t.File("series.json"), """
+            {
+              "train": "train.jsonl", "test": "test.jsonl",
+              "series": { "folder": "series" },
+              "prompts": { "p": "{text} is" },
+              "features": ["hidden"],
+              "folds": 2, "strengths": [1]
+            }
+            """);
+        StudyResult r = Study.Run(StudySpec.Load(_t.File("series.json")), _t.File("series-out"));
+        Assert.Equal(["step5", "step30", "step200"], r.Models.Select(m => m.Name));
+        StudyCurve curve = Assert.Single(r.Curves);
+        Assert.Equal(r.Models.Select(m => m.CrossEntropy.NatsPerToken), curve.Points.Select(p => p.CrossEntropy));
+        Assert.Equal(3, r.Models.Select(m => m.CrossEntropy.NatsPerToken).Distinct().Count());
+    }
+
+    [Fact]
     public void Probing_fields_that_cannot_be_met_are_refused_naming_the_field()
     {
         string path = Write(mlp: 4);

@@ -36,6 +36,50 @@ public sealed class StudySpecTests
         Assert.Equal(new ProbeOptions().Folds, s.Probe.Folds);
     }
 
+    [Fact]
+    public void A_series_folder_gives_its_checkpoints_in_step_order_by_name_or_by_a_field()
+    {
+        using TempFolder t = Folder();
+        foreach ((string name, int step) in new[] { ("ckpt-step-10", 300), ("ckpt-step-2", 100), ("ckpt-step-100", 200) })
+        {
+            Directory.CreateDirectory(t.File("run/" + name));
+            File.WriteAllText(t.File($"run/{name}/config.json"), "{}");
+            File.WriteAllText(t.File($"run/{name}/state.json"), $"{{\"global_step\": {step}}}");
+        }
+        Directory.CreateDirectory(t.File("run/logs")); // not a checkpoint: no config.json
+        string series = Valid.Replace("\"models\": { \"m\": \"model\" },", "\"series\": { \"folder\": \"run\" },", StringComparison.Ordinal);
+        File.WriteAllText(t.File("s.json"), series);
+        StudySpec s = StudySpec.Load(t.File("s.json"));
+        Assert.Equal(["step2", "step10", "step100"], s.Models.Select(m => m.Name));
+        Assert.Equal(t.File("run/ckpt-step-2"), s.Models[0].Folder);
+
+        File.WriteAllText(t.File("s.json"), series.Replace("\"folder\": \"run\"", "\"folder\": \"run\", \"step\": \"state.json:global_step\"", StringComparison.Ordinal));
+        Assert.Equal([("step100", t.File("run/ckpt-step-2")), ("step200", t.File("run/ckpt-step-100")), ("step300", t.File("run/ckpt-step-10"))], StudySpec.Load(t.File("s.json")).Models);
+
+        // With models too: the named models first, then the series.
+        File.WriteAllText(t.File("s.json"), Valid.Replace("\"models\": { \"m\": \"model\" },", "\"models\": { \"m\": \"model\" }, \"series\": { \"folder\": \"run\" },", StringComparison.Ordinal));
+        Assert.Equal(["m", "step2", "step10", "step100"], StudySpec.Load(t.File("s.json")).Models.Select(m => m.Name));
+    }
+
+    [Theory]
+    [InlineData("{ \"folder\": \"run\", \"step\": \"state.json:missing\" }", "has no whole-number field \"missing\"")]
+    [InlineData("{ \"folder\": \"run\", \"step\": \"epoch\" }", "series.step: \"epoch\" is neither name nor FILE:FIELD")]
+    [InlineData("{ \"folder\": \"nowhere\" }", "series.folder: no such folder")]
+    [InlineData("{ \"folder\": \"run\", \"order\": 1 }", "series: unknown field \"order\"")]
+    [InlineData("\"run\"", "series: expected an object with a folder")]
+    public void A_bad_series_is_named(string series, string expected)
+    {
+        using TempFolder t = Folder();
+        Directory.CreateDirectory(t.File("run/final"));
+        File.WriteAllText(t.File("run/final/config.json"), "{}");
+        File.WriteAllText(t.File("run/final/state.json"), "{\"global_step\": 5}");
+        File.WriteAllText(t.File("s.json"), Valid.Replace("\"models\": { \"m\": \"model\" },", $"\"series\": {series},", StringComparison.Ordinal));
+        Assert.Contains(expected, Assert.Throws<StudyException>(() => StudySpec.Load(t.File("s.json"))).Message, StringComparison.Ordinal);
+        // A checkpoint folder without a number in its name, read by name.
+        File.WriteAllText(t.File("s.json"), Valid.Replace("\"models\": { \"m\": \"model\" },", "\"series\": { \"folder\": \"run\" },", StringComparison.Ordinal));
+        Assert.Contains("has no step number in its name", Assert.Throws<StudyException>(() => StudySpec.Load(t.File("s.json"))).Message, StringComparison.Ordinal);
+    }
+
     [Theory]
     [InlineData("\"features\": [\"hidden\", \"cmean\"]", "\"features\": [\"hidden\", \"logits\"]", "features: unknown kind \"logits\"")]
     [InlineData("\"features\": [\"hidden\", \"cmean\"]", "\"features\": [\"words\"]", "verbalizer: words and zero-shot need a verbalizer file")]

@@ -22,6 +22,7 @@ public sealed class StudyException : InvalidInputException
 ///   "train": "tasks/x/train.jsonl", "test": "tasks/x/test.jsonl",   // labelled texts (id, text, label)
 ///   "train_every": 8, "test_every": 4,                             // every k-th record of each label (1 = all)
 ///   "models": { "init": "models/a-init", "final": "models/a" },   // name → checkpoint folder, in order
+///   "series": { "folder": "models/run1", "step": "name" },        // and/or every checkpoint of a run, by step
 ///   "prompts": { "kind-of": "{text} It is a kind of" },            // name → template
 ///   "features": ["hidden", "cmean", "words", "zero-shot"],
 ///   "verbalizer": "labels.txt",                                    // for words and zero-shot
@@ -110,7 +111,7 @@ public sealed partial record StudySpec
             throw new StudyException(path, $"not a JSON object ({e.Message})", e);
         }
         string folder = System.IO.Path.GetDirectoryName(path)!;
-        string known = "train, test, train_every, test_every, models, prompts, features, verbalizer, folds, strengths, layers, control, mlp, compare";
+        string known = "train, test, train_every, test_every, models, series, prompts, features, verbalizer, folds, strengths, layers, control, mlp, compare";
         string? unknown = o.Select(p => p.Key).FirstOrDefault(k => !known.Split(", ").Contains(k));
         if (unknown != null)
         {
@@ -124,11 +125,22 @@ public sealed partial record StudySpec
             return System.IO.File.Exists(full) ? full : throw new StudyException(path, $"{field}: no such file {full}");
         }
 
-        var models = Map(path, o, "models").Select(m =>
+        var models = (o.ContainsKey("models") || !o.ContainsKey("series") ? Map(path, o, "models") : []).Select(m =>
         {
             string full = System.IO.Path.GetFullPath(System.IO.Path.Combine(folder, m.Value));
             return Directory.Exists(full) ? (m.Name, full) : throw new StudyException(path, $"models.{m.Name}: no such folder {full}");
         }).ToList();
+        if (o.ContainsKey("series"))
+        {
+            foreach ((string name, string checkpoint) in Series(path, folder, o["series"]))
+            {
+                if (models.Any(m => m.Name == name))
+                {
+                    throw new StudyException(path, $"series: its checkpoint {name} has the name of a model in models");
+                }
+                models.Add((name, checkpoint));
+            }
+        }
         var prompts = Map(path, o, "prompts");
         string[] features = o["features"] is JsonArray fa && fa.Count > 0 && fa.All(f => f is JsonValue v && v.TryGetValue(out string? _))
             ? [.. fa.Select(f => f!.GetValue<string>())]
@@ -256,6 +268,73 @@ public sealed partial record StudySpec
         ["folds"] = Probe.Folds,
         ["strengths"] = new JsonArray([.. Probe.InverseRegularizations.Select(s => JsonValue.Create(s))]),
     };
+
+    [GeneratedRegex("([0-9]+)[^0-9]*$")]
+    private static partial Regex LastNumber();
+
+    /// <summary>
+    /// The checkpoints of a series: every sub-folder of <c>series.folder</c> that holds a config.json, ordered by its
+    /// training step — the last number in the folder's name (<c>"step": "name"</c>, the default), or a whole-number
+    /// field of a JSON file in it (<c>"step": "FILE:FIELD"</c>, e.g. <c>"trainer_state.json:global_step"</c>) — and
+    /// named <c>stepN</c>.
+    /// </summary>
+    private static List<(string Name, string Folder)> Series(string path, string folder, JsonNode? node)
+    {
+        if (node is not JsonObject series || series["folder"] is not JsonValue fv || !fv.TryGetValue(out string? relative) || relative.Length == 0)
+        {
+            throw new StudyException(path, "series: expected an object with a folder (and optionally step: name or FILE:FIELD)");
+        }
+        string? unknown = series.Select(p => p.Key).FirstOrDefault(k => k is not ("folder" or "step"));
+        if (unknown != null)
+        {
+            throw new StudyException(path, $"series: unknown field \"{unknown}\"; the fields are folder and step");
+        }
+        string step = series["step"] is JsonValue sv && sv.TryGetValue(out string? s) ? s : series.ContainsKey("step") ? throw new StudyException(path, "series.step: expected name or FILE:FIELD") : "name";
+        string[]? fileField = step == "name" ? null : step.Split(':') is [string file, string field] && file.Length > 0 && field.Length > 0 ? [file, field]
+            : throw new StudyException(path, $"series.step: \"{step}\" is neither name nor FILE:FIELD");
+        string root = System.IO.Path.GetFullPath(System.IO.Path.Combine(folder, relative));
+        if (!Directory.Exists(root))
+        {
+            throw new StudyException(path, $"series.folder: no such folder {root}");
+        }
+        var checkpoints = new List<(long Step, string Folder)>();
+        foreach (string sub in Directory.EnumerateDirectories(root).Where(d => File.Exists(System.IO.Path.Combine(d, Config.ModelConfig.FileName))))
+        {
+            long n;
+            if (fileField == null)
+            {
+                Match m = LastNumber().Match(System.IO.Path.GetFileName(sub));
+                n = m.Success && long.TryParse(m.Groups[1].Value, NumberStyles.None, CultureInfo.InvariantCulture, out long v) ? v
+                    : throw new StudyException(path, $"series: {sub} has no step number in its name (give step: FILE:FIELD to read it from a file)");
+            }
+            else
+            {
+                string stateFile = System.IO.Path.Combine(sub, fileField[0]);
+                JsonNode? state;
+                try
+                {
+                    state = File.Exists(stateFile) ? JsonNode.Parse(InputFile.ReadAllBytes(stateFile)) : null;
+                }
+                catch (JsonException e)
+                {
+                    throw new StudyException(path, $"series: {stateFile} is not JSON ({e.Message})", e);
+                }
+                n = state is JsonObject so && so[fileField[1]] is JsonValue value && value.TryGetValue(out long read) && read >= 0 ? read
+                    : throw new StudyException(path, $"series: {stateFile} has no whole-number field \"{fileField[1]}\"");
+            }
+            checkpoints.Add((n, sub));
+        }
+        if (checkpoints.Count == 0)
+        {
+            throw new StudyException(path, $"series.folder: {root} holds no checkpoint folder (a folder with {Config.ModelConfig.FileName})");
+        }
+        var twice = checkpoints.GroupBy(c => c.Step).FirstOrDefault(g => g.Count() > 1);
+        if (twice != null)
+        {
+            throw new StudyException(path, string.Create(CultureInfo.InvariantCulture, $"series: step {twice.Key} is both {string.Join(" and ", twice.Select(c => c.Folder).Order(StringComparer.Ordinal))}"));
+        }
+        return [.. checkpoints.OrderBy(c => c.Step).Select(c => (string.Create(CultureInfo.InvariantCulture, $"step{c.Step}"), c.Folder))];
+    }
 
     private static string Text(string path, JsonObject o, string field) =>
         o[field] is JsonValue v && v.TryGetValue(out string? s) && s.Length > 0
