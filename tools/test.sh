@@ -18,7 +18,7 @@ root=$(cd "$(dirname "$0")/.." && pwd)
 export DEBIAN_FRONTEND=noninteractive DOTNET_CLI_TELEMETRY_OPTOUT=1 DOTNET_NOLOGO=1
 
 packages=(python3 python3-numpy python3-sklearn python3-scipy python3-sentencepiece coreutils wordnet-base fortunes
-  fortunes-min fonts-dejavu-core afl++ slurmctld slurmd slurm-client munge)
+  fortunes-min fonts-dejavu-core afl++ slurmctld slurmd slurm-client munge chromium-headless-shell)
 missing=()
 for p in "${packages[@]}"; do
   dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")

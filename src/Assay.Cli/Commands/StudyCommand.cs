@@ -32,7 +32,7 @@ internal static class StudyCommand
         StudyReport.Write(result, output, markdown);
         o.Write(markdown);
         o.WriteLine();
-        o.WriteLine($"wrote {Path.Combine(output, StudyFolder.MarkdownFile)}, {StudyFolder.CsvFile} and the plots in {output}");
+        o.WriteLine($"wrote {Path.Combine(output, StudyFolder.MarkdownFile)}, {StudyFolder.CsvFile}, {StudyFolder.HtmlFile} and the plots in {output}");
         return 0;
     }
 

@@ -27,6 +27,8 @@ internal static class StudyReport
                 LayersPlot(r, prompt).SavePng(Path.Combine(folder, StudyFolder.LayersPlot(prompt)), 1000, 520);
             }
         }
+        // Last: the page carries the plots just written.
+        File.WriteAllText(Path.Combine(folder, StudyFolder.HtmlFile), StudyHtml.Build(r, folder, markdown));
     }
 
     public static string Markdown(StudyResult r)

@@ -1,5 +1,6 @@
 using System.Buffers.Binary;
 using System.Globalization;
+using System.Text.Json;
 using Assay.Cli.Commands;
 using Assay.Evaluation;
 using Assay.Tests.Model;
@@ -155,6 +156,68 @@ public sealed class StudyTests(StudyFixture study) : IClassFixture<StudyFixture>
         Assert.Equal(width, BinaryPrimitives.ReadInt32BigEndian(png.AsSpan(16)));
         Assert.Equal(height, BinaryPrimitives.ReadInt32BigEndian(png.AsSpan(20)));
         Assert.True(png.Length > 10_000, $"{name}: {png.Length} bytes");
+    }
+
+    [Fact]
+    public async Task The_html_report_is_self_contained_and_renders_in_headless_chromium()
+    {
+        string page = Path.Combine(study.Folder, StudyFolder.HtmlFile);
+        string html = File.ReadAllText(page);
+        StudyResult r = study.Rerun();
+        // What it must hold: the tables, every model's file hashes, the study file, the plots inline.
+        Assert.Contains(string.Create(CultureInfo.InvariantCulture, $"<td class=\"n\">{r.Models[2].CrossEntropy.NatsPerToken:F3}</td>"), html, StringComparison.Ordinal);
+        foreach (Assay.Model.ModelFile f in Assay.Model.ModelFile.Describe(r.Models[0].Folder))
+        {
+            Assert.Contains(f.Sha256, html, StringComparison.Ordinal);
+        }
+        Assert.Contains("&quot;train_every&quot;: 16", html, StringComparison.Ordinal);
+        Assert.Equal(2, System.Text.RegularExpressions.Regex.Count(html, "src=\"data:image/png;base64,"));
+        // Nothing outside the page: every src and href is a data: URI.
+        Assert.DoesNotMatch(@"(src|href)\s*=\s*[""'](?!data:)", html);
+
+        // Rendered by Debian's headless Chromium (package chromium-headless-shell) with name resolution off and every
+        // request logged: the net log holds no request, and the screenshot is not blank.
+        const string chromium = "/usr/bin/chromium-headless-shell";
+        Assert.True(File.Exists(chromium), $"{chromium} is missing: apt-get install chromium-headless-shell (tools/test.sh does)");
+        using var temp = new TempFolder();
+        var psi = new System.Diagnostics.ProcessStartInfo(chromium) { RedirectStandardOutput = true, RedirectStandardError = true };
+        foreach (string a in new[] { "--no-sandbox", "--disable-gpu", "--hide-scrollbars", $"--user-data-dir={temp.File("profile")}", "--window-size=1100,1400",
+            $"--screenshot={temp.File("shot.png")}", $"--log-net-log={temp.File("net.json")}", "--host-resolver-rules=MAP * ~NOTFOUND", new Uri(page).AbsoluteUri })
+        {
+            psi.ArgumentList.Add(a);
+        }
+        using (var p = System.Diagnostics.Process.Start(psi)!)
+        {
+            Task<string> stderr = p.StandardError.ReadToEndAsync();
+            Task<string> stdout = p.StandardOutput.ReadToEndAsync();
+            using var limit = new CancellationTokenSource(TimeSpan.FromMinutes(2));
+            await p.WaitForExitAsync(limit.Token);
+            await stdout;
+            Assert.True(p.ExitCode == 0, $"chromium exited with {p.ExitCode}: {await stderr}");
+        }
+        using (JsonDocument net = JsonDocument.Parse(File.ReadAllBytes(temp.File("net.json"))))
+        {
+            string[] requests = [.. net.RootElement.GetProperty("events").EnumerateArray()
+                .Where(e => e.TryGetProperty("params", out JsonElement ps) && ps.ValueKind == JsonValueKind.Object && ps.TryGetProperty("url", out _))
+                .Select(e => e.GetProperty("params").GetProperty("url").GetString()!)
+                .Where(u => !u.StartsWith("file:", StringComparison.Ordinal) && !u.StartsWith("data:", StringComparison.Ordinal))];
+            Assert.Empty(requests);
+        }
+        using SkiaSharp.SKBitmap shot = SkiaSharp.SKBitmap.Decode(temp.File("shot.png"));
+        Assert.Equal((1100, 1400), (shot.Width, shot.Height));
+        int inked = 0;
+        var colours = new HashSet<uint>();
+        for (int y = 0; y < shot.Height; y += 4)
+        {
+            for (int x = 0; x < shot.Width; x += 4)
+            {
+                SkiaSharp.SKColor c = shot.GetPixel(x, y);
+                inked += c.Red + c.Green + c.Blue < 600 ? 1 : 0;
+                colours.Add((uint)c);
+            }
+        }
+        // Text, table rules and a plot: measured about 6 % of the sampled pixels dark and dozens of colours.
+        Assert.True(inked > shot.Width * shot.Height / 16 / 100 && colours.Count > 10, $"{inked} dark samples, {colours.Count} colours");
     }
 
     [Fact]

@@ -26,6 +26,9 @@ public static class StudyFolder
     /// <summary>The report's table of every cell.</summary>
     public const string CsvFile = "results.csv";
 
+    /// <summary>The report as one self-contained page: tables, plots inline, the study file, the models' file hashes.</summary>
+    public const string HtmlFile = "report.html";
+
     private const string AccuracyPrefix = "accuracy.";
 
     private const string LossPrefix = "loss-vs-cross-entropy.";
@@ -45,7 +48,7 @@ public static class StudyFolder
 
     /// <summary>Whether an entry of this name belongs in a study folder (a part of the study or a report file).</summary>
     internal static bool Owns(string name) =>
-        Output.FolderLock.IsLockFile(name) || name is SpecFile or DataFolder or RunsFolder or CellsFolder or MarkdownFile or CsvFile
+        Output.FolderLock.IsLockFile(name) || name is SpecFile or DataFolder or RunsFolder or CellsFolder or MarkdownFile or CsvFile or HtmlFile
         || (name.EndsWith(PlotSuffix, StringComparison.Ordinal)
             && (name.StartsWith(AccuracyPrefix, StringComparison.Ordinal) || name.StartsWith(LossPrefix, StringComparison.Ordinal)
                 || name.StartsWith(LayersPrefix, StringComparison.Ordinal)));
