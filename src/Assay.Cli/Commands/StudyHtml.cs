@@ -1,6 +1,7 @@
 using System.Globalization;
 using System.Net;
 using System.Text;
+using System.Text.Json.Nodes;
 using System.Text.RegularExpressions;
 using Assay.Evaluation;
 using Assay.Model;
@@ -21,6 +22,9 @@ internal static partial class StudyHtml
 
     public static string Build(StudyResult r, string folder, string markdown)
     {
+        // Paths as the study file writes them (relative to it), so the page says nothing of the machine it was made on.
+        string beside = Path.GetDirectoryName(r.Spec.Path)!;
+        string Relative(string path) => Path.GetRelativePath(beside, path);
         var h = new StringBuilder();
         string title = $"Study {Path.GetFileName(r.Spec.Path)}";
         h.Append("<!doctype html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">")
@@ -52,7 +56,7 @@ internal static partial class StudyHtml
         h.Append("<h2>Models and their files</h2>\n");
         foreach (StudyModel m in r.Models)
         {
-            h.Append("<h3>").Append(Encode(m.Name)).Append("</h3><p><code>").Append(Encode(m.Folder)).Append("</code>, cross-entropy ")
+            h.Append("<h3>").Append(Encode(m.Name)).Append("</h3><p><code>").Append(Encode(Relative(m.Folder))).Append("</code>, cross-entropy ")
                 .Append(m.CrossEntropy.NatsPerToken.ToString("F4", Inv)).Append(" nats/token on ").Append(m.CrossEntropy.Texts.ToString("N0", Inv)).Append(" test texts</p>\n")
                 .Append("<table><tr><th>file</th><th>bytes</th><th>SHA-256</th></tr>\n");
             foreach (ModelFile f in ModelFile.Describe(m.Folder))
@@ -63,8 +67,8 @@ internal static partial class StudyHtml
             h.Append("</table>\n");
         }
 
-        h.Append("<h2>The study file, as resolved</h2>\n<pre>")
-            .Append(Encode(File.ReadAllText(Path.Combine(folder, StudyFolder.SpecFile)))).Append("</pre>\n");
+        h.Append("<h2>The study file, as resolved (paths relative to it)</h2>\n<pre>")
+            .Append(Encode(RelativePaths(r.Spec.ToJson(), Relative).ToJsonString(JsonOutput.Options))).Append("</pre>\n");
         h.Append("<h2>What the numbers mean</h2>\n<dl>")
             .Append("<dt>accuracy (95 %)</dt><dd>the share of test texts whose most likely class is the true one; in brackets the 2.5th and 97.5th percentiles of 1,000 bootstrap resamples of the test texts (they cover the choice of test texts, not of training texts or seeds).</dd>")
             .Append("<dt>log loss</dt><dd>the mean of −ln p(true class) over the test texts, in nats (probabilities clipped at 10⁻¹⁵).</dd>")
@@ -75,6 +79,39 @@ internal static partial class StudyHtml
             .Append("<dt>A − B (paired)</dt><dd>the difference of two feature kinds on the same test texts, with the percentile interval of 1,000 resamples that score both on the same rows, and the share of resamples in which A is ahead.</dd>")
             .Append("</dl>\n</body></html>\n");
         return h.ToString();
+    }
+
+    /// <summary>The JSON, changed in place: every rooted path string made relative by <paramref name="relative"/>.</summary>
+    private static JsonNode RelativePaths(JsonNode node, Func<string, string> relative)
+    {
+        if (node is JsonObject o)
+        {
+            foreach ((string key, JsonNode? child) in o.ToList())
+            {
+                Replace(child, v => o[key] = v);
+            }
+        }
+        else if (node is JsonArray a)
+        {
+            for (int i = 0; i < a.Count; i++)
+            {
+                int at = i;
+                Replace(a[i], v => a[at] = v);
+            }
+        }
+        return node;
+
+        void Replace(JsonNode? child, Action<JsonNode> set)
+        {
+            if (child is JsonValue v && v.TryGetValue(out string? text) && Path.IsPathRooted(text))
+            {
+                set(JsonValue.Create(relative(text)));
+            }
+            else if (child != null)
+            {
+                RelativePaths(child, relative);
+            }
+        }
     }
 
     /// <summary>The Markdown that <see cref="StudyReport.Markdown"/> writes (paragraphs and pipe tables, ** for bold) as HTML.</summary>

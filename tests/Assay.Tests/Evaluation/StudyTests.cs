@@ -171,6 +171,10 @@ public sealed class StudyTests(StudyFixture study) : IClassFixture<StudyFixture>
             Assert.Contains(f.Sha256, html, StringComparison.Ordinal);
         }
         Assert.Contains("&quot;train_every&quot;: 16", html, StringComparison.Ordinal);
+        // Paths relative to the study file, none rooted: the page says nothing of the folder it was made in.
+        Assert.Contains($"<code>{System.Net.WebUtility.HtmlEncode(Path.GetRelativePath(Path.GetDirectoryName(study.SpecFile)!, r.Models[0].Folder))}</code>", html, StringComparison.Ordinal);
+        Assert.DoesNotContain("&quot;/", html, StringComparison.Ordinal);
+        Assert.DoesNotContain("<code>/", html, StringComparison.Ordinal);
         Assert.Equal(2, System.Text.RegularExpressions.Regex.Count(html, "src=\"data:image/png;base64,"));
         // Nothing outside the page: every src and href is a data: URI.
         Assert.DoesNotMatch(@"(src|href)\s*=\s*[""'](?!data:)", html);

@@ -23,12 +23,17 @@ public static class ReportFolder
     /// <summary>A layer sweep's plot: test accuracy against layer.</summary>
     public const string LayersPlot = "layers.png";
 
+    private const string LayerPredictionsPrefix = "predictions.layer";
+
+    private const string CsvSuffix = ".csv";
+
     /// <summary>A layer sweep's predictions of layer <paramref name="layer"/>, as <see cref="PredictionsFile"/>.</summary>
-    public static string LayerPredictionsFile(int layer) => string.Create(System.Globalization.CultureInfo.InvariantCulture, $"predictions.layer{layer}.csv");
+    public static string LayerPredictionsFile(int layer) => string.Create(System.Globalization.CultureInfo.InvariantCulture, $"{LayerPredictionsPrefix}{layer}{CsvSuffix}");
 
     private static bool IsReportFile(string name) => name is ProbeFile or ReportFile or PredictionsFile or LayersTable or LayersPlot
-        || (name.StartsWith("predictions.layer", StringComparison.Ordinal) && name.EndsWith(".csv", StringComparison.Ordinal)
-            && int.TryParse(name.AsSpan(17, name.Length - 21), System.Globalization.NumberStyles.None, System.Globalization.CultureInfo.InvariantCulture, out _));
+        || (name.StartsWith(LayerPredictionsPrefix, StringComparison.Ordinal) && name.EndsWith(CsvSuffix, StringComparison.Ordinal)
+            && int.TryParse(name.AsSpan(LayerPredictionsPrefix.Length, name.Length - LayerPredictionsPrefix.Length - CsvSuffix.Length),
+                System.Globalization.NumberStyles.None, System.Globalization.CultureInfo.InvariantCulture, out _));
 
     /// <summary>Checks, without touching it, that <see cref="Claim"/> would take <paramref name="folder"/>.</summary>
     /// <exception cref="Output.RunFolderException">As <see cref="Claim"/>.</exception>
