@@ -2,6 +2,7 @@ using System.Buffers;
 using System.Numerics.Tensors;
 using System.Runtime.CompilerServices;
 using System.Runtime.Intrinsics;
+using System.Runtime.Intrinsics.Arm;
 using System.Runtime.Intrinsics.X86;
 using Assay.Config;
 
@@ -43,7 +44,8 @@ internal static unsafe partial class CpuKernels
     /// The int8 form of <see cref="Gemm"/>: A's rows quantized by <see cref="QuantizeRows"/>, B int8 per column, each
     /// output the exact integer Σ_k (u_rk − 128)·q_kn (on the <paramref name="kernel"/> path: 4-way byte dot products with
     /// AVX-VNNI; pairs of 16-bit products with AVX2 or AVX-512BW, from A widened once to u − 128 in 16 bits and B widened
-    /// in registers; or scalar integer code with the same sums), then
+    /// in registers; 4-way signed byte dot products on Arm64, from A's bytes centred in place to u − 128; or scalar
+    /// integer code with the same sums), then
     /// C = [C +] (float(sum) · s_n · t_r + bias_n) in that order. The integer sums make every path give the same bits.
     /// </summary>
     private static void GemmInt8(ReadOnlySpan<float> a, int m, int lda, PackedMatrix b, Span<float> c, int ldc,
@@ -58,6 +60,7 @@ internal static unsafe partial class CpuKernels
             throw new ArgumentException($"this CPU does not have the int8 path {kernel}", nameof(kernel));
         }
         bool wide = kernel is Int8Kernel.Avx2 or Int8Kernel.Avx512BW;
+        bool centred = kernel == Int8Kernel.ArmDot;
         short[]? widened = wide ? ArrayPool<short>.Shared.Rent(m * ldq) : null;
         try
         {
@@ -68,6 +71,10 @@ internal static unsafe partial class CpuKernels
                 if (widened is not null)
                 {
                     Centre(quantized.AsSpan(0, m * ldq), widened);
+                }
+                else if (centred)
+                {
+                    CentreInPlace(quantized.AsSpan(0, m * ldq));
                 }
             }
             else
@@ -84,6 +91,10 @@ internal static unsafe partial class CpuKernels
                         if (widened is not null)
                         {
                             Centre(quantized.AsSpan(r0 * ldq, rows * ldq), widened.AsSpan(r0 * ldq, rows * ldq));
+                        }
+                        else if (centred)
+                        {
+                            CentreInPlace(quantized.AsSpan(r0 * ldq, rows * ldq));
                         }
                     });
                 }
@@ -143,6 +154,27 @@ internal static unsafe partial class CpuKernels
         for (; i < quantized.Length; i++)
         {
             widened[i] = (short)(quantized[i] - 128);
+        }
+    }
+
+    /// <summary>
+    /// The quantized bytes as the signed bytes they stand for, u − 128, in place: flipping the top bit maps 128 + x to
+    /// x for x in −128 … 127 (the padding 128 becomes 0).
+    /// </summary>
+    private static void CentreInPlace(Span<byte> quantized)
+    {
+        int i = 0;
+        if (Vector128.IsHardwareAccelerated)
+        {
+            Vector128<byte> top = Vector128.Create((byte)0x80);
+            for (; i + 16 <= quantized.Length; i += 16)
+            {
+                (Vector128.Create(quantized.Slice(i, 16)) ^ top).CopyTo(quantized.Slice(i, 16));
+            }
+        }
+        for (; i < quantized.Length; i++)
+        {
+            quantized[i] ^= 0x80;
         }
     }
 
@@ -206,13 +238,16 @@ internal static unsafe partial class CpuKernels
                             MicroPairs256(wideRows, bp, _groups, sums, 0);
                             MicroPairs256(wideRows, bp, _groups, sums, 8);
                             break;
+                        case Int8Kernel.ArmDot:
+                            MicroDot(rows, bp, _groups, sums);
+                            break;
                         default:
                             MicroQuadScalar(rows, bp, _groups, sums);
                             break;
                     }
                     int width = Math.Min(QuadColumns, _n - n0);
-                    // The byte paths sum u·q = (u − 128)·q + 128·q; the 16-bit paths sum (u − 128)·q already.
-                    int offset = _wide == null ? 128 : 0;
+                    // The unsigned byte paths sum u·q = (u − 128)·q + 128·q; the 16-bit and signed byte paths sum (u − 128)·q already.
+                    int offset = _kernel is Int8Kernel.Scalar or Int8Kernel.AvxVnni ? 128 : 0;
                     for (int r = 0; r < count; r++)
                     {
                         float t = _rowScales[r0 + r];
@@ -303,6 +338,47 @@ internal static unsafe partial class CpuKernels
         x00.Store(sums); x01.Store(sums + 8); x10.Store(sums + 16); x11.Store(sums + 24);
         x20.Store(sums + 32); x21.Store(sums + 40); x30.Store(sums + 48); x31.Store(sums + 56);
         x40.Store(sums + 64); x41.Store(sums + 72); x50.Store(sums + 80); x51.Store(sums + 88);
+    }
+
+    /// <summary>
+    /// The same sums with the Arm64 dot-product instructions (SDOT, <see cref="Dp"/>): A's bytes centred in place to the
+    /// signed u − 128, each row's four bytes of a group broadcast, and one SDOT per row and four columns (24
+    /// accumulators, four column vectors and a broadcast fit the 32 registers). Signed bytes times signed bytes into int32,
+    /// so the sums are the exact integers Σ (u − 128)·q.
+    /// </summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    private static void MicroDot(byte** rows, sbyte* bp, int groups, int* sums)
+    {
+        const int Stride = PackedMatrix.PanelWidth * PackedMatrix.QuadDepth;
+        byte* a0 = rows[0], a1 = rows[1], a2 = rows[2], a3 = rows[3], a4 = rows[4], a5 = rows[5];
+        Vector128<int> x00 = default, x01 = default, x02 = default, x03 = default, x10 = default, x11 = default;
+        Vector128<int> x12 = default, x13 = default, x20 = default, x21 = default, x22 = default, x23 = default;
+        Vector128<int> x30 = default, x31 = default, x32 = default, x33 = default, x40 = default, x41 = default;
+        Vector128<int> x42 = default, x43 = default, x50 = default, x51 = default, x52 = default, x53 = default;
+        for (int g = 0; g < groups; g++)
+        {
+            sbyte* q = bp + ((long)g * Stride);
+            Vector128<sbyte> b0 = Vector128.Load(q), b1 = Vector128.Load(q + 16), b2 = Vector128.Load(q + 32), b3 = Vector128.Load(q + 48);
+            int o = g * PackedMatrix.QuadDepth;
+            Vector128<sbyte> v = Vector128.Create(Unsafe.ReadUnaligned<int>(a0 + o)).AsSByte();
+            x00 = Dp.DotProduct(x00, v, b0); x01 = Dp.DotProduct(x01, v, b1); x02 = Dp.DotProduct(x02, v, b2); x03 = Dp.DotProduct(x03, v, b3);
+            v = Vector128.Create(Unsafe.ReadUnaligned<int>(a1 + o)).AsSByte();
+            x10 = Dp.DotProduct(x10, v, b0); x11 = Dp.DotProduct(x11, v, b1); x12 = Dp.DotProduct(x12, v, b2); x13 = Dp.DotProduct(x13, v, b3);
+            v = Vector128.Create(Unsafe.ReadUnaligned<int>(a2 + o)).AsSByte();
+            x20 = Dp.DotProduct(x20, v, b0); x21 = Dp.DotProduct(x21, v, b1); x22 = Dp.DotProduct(x22, v, b2); x23 = Dp.DotProduct(x23, v, b3);
+            v = Vector128.Create(Unsafe.ReadUnaligned<int>(a3 + o)).AsSByte();
+            x30 = Dp.DotProduct(x30, v, b0); x31 = Dp.DotProduct(x31, v, b1); x32 = Dp.DotProduct(x32, v, b2); x33 = Dp.DotProduct(x33, v, b3);
+            v = Vector128.Create(Unsafe.ReadUnaligned<int>(a4 + o)).AsSByte();
+            x40 = Dp.DotProduct(x40, v, b0); x41 = Dp.DotProduct(x41, v, b1); x42 = Dp.DotProduct(x42, v, b2); x43 = Dp.DotProduct(x43, v, b3);
+            v = Vector128.Create(Unsafe.ReadUnaligned<int>(a5 + o)).AsSByte();
+            x50 = Dp.DotProduct(x50, v, b0); x51 = Dp.DotProduct(x51, v, b1); x52 = Dp.DotProduct(x52, v, b2); x53 = Dp.DotProduct(x53, v, b3);
+        }
+        x00.Store(sums); x01.Store(sums + 4); x02.Store(sums + 8); x03.Store(sums + 12);
+        x10.Store(sums + 16); x11.Store(sums + 20); x12.Store(sums + 24); x13.Store(sums + 28);
+        x20.Store(sums + 32); x21.Store(sums + 36); x22.Store(sums + 40); x23.Store(sums + 44);
+        x30.Store(sums + 48); x31.Store(sums + 52); x32.Store(sums + 56); x33.Store(sums + 60);
+        x40.Store(sums + 64); x41.Store(sums + 68); x42.Store(sums + 72); x43.Store(sums + 76);
+        x50.Store(sums + 80); x51.Store(sums + 84); x52.Store(sums + 88); x53.Store(sums + 92);
     }
 
     /// <summary>

@@ -17,4 +17,10 @@ public enum Int8Kernel
 
     /// <summary>The <see cref="Avx2"/> path at 512 bits (AVX-512BW).</summary>
     Avx512BW,
+
+    /// <summary>
+    /// Arm64 signed byte dot products (SDOT, the dot-product extension of AdvSimd) on 128-bit vectors, from A's bytes
+    /// centred once to the signed u − 128.
+    /// </summary>
+    ArmDot,
 }

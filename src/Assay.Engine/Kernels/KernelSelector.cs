@@ -1,4 +1,5 @@
 using System.Runtime.Intrinsics;
+using System.Runtime.Intrinsics.Arm;
 using System.Runtime.Intrinsics.X86;
 
 namespace Assay.Kernels;
@@ -6,7 +7,8 @@ namespace Assay.Kernels;
 /// <summary>
 /// Picks the kernel paths once at start-up: the widest hardware-accelerated vector width, in the order
 /// Vector512 → Vector256 → Vector128 → Scalar, and for int8, where the float path is at least 256 bits wide, AVX-VNNI
-/// where the CPU has it, else AVX-512BW under a 512-bit float path, else AVX2; scalar otherwise. The environment variable <c>ASSAY_KERNELS</c> forces them as
+/// where the CPU has it, else AVX-512BW under a 512-bit float path, else AVX2; on Arm64 the dot-product extension
+/// under any vector float path; scalar otherwise. The environment variable <c>ASSAY_KERNELS</c> forces them as
 /// <c>FLOAT[:INT8]</c> (<c>vector256</c>, <c>vector512:scalar</c>, <c>scalar</c>; the int8 part defaults as above
 /// for the forced width), so the whole test suite can run on each; forcing a path the CPU lacks is an error.
 /// </summary>
@@ -59,12 +61,14 @@ public static class KernelSelector
         Int8Kernel.AvxVnni => AvxVnni.IsSupported,
         Int8Kernel.Avx512BW => Avx512BW.IsSupported,
         Int8Kernel.Avx2 => Avx2.IsSupported,
+        Int8Kernel.ArmDot => Dp.IsSupported,
         _ => true,
     };
 
     /// <summary>The int8 path taken by default with a float path of width <paramref name="variant"/>.</summary>
     public static Int8Kernel DefaultInt8(KernelVariant variant) =>
-        variant < KernelVariant.Vector256 ? Int8Kernel.Scalar
+        variant >= KernelVariant.Vector128 && IsSupported(Int8Kernel.ArmDot) ? Int8Kernel.ArmDot
+        : variant < KernelVariant.Vector256 ? Int8Kernel.Scalar
         : IsSupported(Int8Kernel.AvxVnni) ? Int8Kernel.AvxVnni
         : variant == KernelVariant.Vector512 && IsSupported(Int8Kernel.Avx512BW) ? Int8Kernel.Avx512BW
         : IsSupported(Int8Kernel.Avx2) ? Int8Kernel.Avx2
@@ -85,7 +89,7 @@ public static class KernelSelector
         if (!Enum.TryParse(floatPart, ignoreCase: true, out KernelVariant v) || !Enum.IsDefined(v) || !char.IsLetter(floatPart[0]))
         {
             throw new InvalidOperationException(
-                $"{EnvironmentVariable}={forced} is not a kernel variant; use scalar, vector128, vector256 or vector512, optionally followed by :scalar, :avxvnni, :avx2 or :avx512bw for int8");
+                $"{EnvironmentVariable}={forced} is not a kernel variant; use scalar, vector128, vector256 or vector512, optionally followed by :scalar, :avxvnni, :avx2, :avx512bw or :armdot for int8");
         }
         if (!IsSupported(v))
         {
@@ -98,7 +102,7 @@ public static class KernelSelector
         string int8Part = forced[(colon + 1)..];
         if (int8Part.Length == 0 || !char.IsLetter(int8Part[0]) || !Enum.TryParse(int8Part, ignoreCase: true, out Int8Kernel q) || !Enum.IsDefined(q))
         {
-            throw new InvalidOperationException($"{EnvironmentVariable}={forced}: \"{int8Part}\" is not an int8 path; use scalar, avxvnni, avx2 or avx512bw");
+            throw new InvalidOperationException($"{EnvironmentVariable}={forced}: \"{int8Part}\" is not an int8 path; use scalar, avxvnni, avx2, avx512bw or armdot");
         }
         if (!IsSupported(q))
         {

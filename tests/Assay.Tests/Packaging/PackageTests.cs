@@ -149,35 +149,7 @@ public sealed class PackageTests(PackedFolder packed) : IClassFixture<PackedFold
 
     private static string Run(string file, string[] args, string directory, PackedFolder packed) => Run(file, args, directory, packed, isolated: true);
 
-    /// <summary>
-    /// Runs a program to its end and returns its standard output; a non-zero exit fails the test with both streams.
-    /// Isolated runs get the empty packages folder; MSBuild's variables from the test host are never passed on.
-    /// </summary>
-    internal static string Run(string file, string[] args, string directory, PackedFolder packed, bool isolated)
-    {
-        var psi = new ProcessStartInfo(file) { WorkingDirectory = directory, RedirectStandardOutput = true, RedirectStandardError = true };
-        foreach (string a in args)
-        {
-            psi.ArgumentList.Add(a);
-        }
-        foreach (string key in psi.Environment.Keys.Where(k => k.StartsWith("MSBUILD", StringComparison.OrdinalIgnoreCase) || k.StartsWith("VSTEST", StringComparison.OrdinalIgnoreCase) || k == "DOTNET_HOST_PATH").ToList())
-        {
-            psi.Environment.Remove(key);
-        }
-        psi.Environment["DOTNET_NOLOGO"] = "1";
-        psi.Environment["DOTNET_CLI_TELEMETRY_OPTOUT"] = "1";
-        if (isolated)
-        {
-            psi.Environment["NUGET_PACKAGES"] = packed.Packages;
-        }
-        using Process p = Process.Start(psi)!;
-        Task<string> stdout = p.StandardOutput.ReadToEndAsync(), stderr = p.StandardError.ReadToEndAsync();
-        if (!p.WaitForExit(TimeSpan.FromMinutes(5)))
-        {
-            p.Kill(entireProcessTree: true);
-            Assert.Fail($"{file} {string.Join(' ', args)}: still running after 5 minutes");
-        }
-        Assert.True(p.ExitCode == 0, $"{file} {string.Join(' ', args)} exited with {p.ExitCode}\n{stdout.Result}\n{stderr.Result}");
-        return stdout.Result;
-    }
+    /// <summary>Runs a program to its end (<see cref="ChildProcess.Run"/>); isolated runs get the empty packages folder.</summary>
+    internal static string Run(string file, string[] args, string directory, PackedFolder packed, bool isolated) =>
+        ChildProcess.Run(file, args, directory, isolated ? new Dictionary<string, string> { ["NUGET_PACKAGES"] = packed.Packages } : null);
 }
