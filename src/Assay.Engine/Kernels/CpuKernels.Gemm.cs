@@ -272,6 +272,7 @@ internal static unsafe partial class CpuKernels
     }
 
     /// <summary>A 4 × 64 tile with scalar arithmetic, accumulating over k in order.</summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static void MicroScalar<TPanel>(float** rows, byte* bp, int k, float* bias, float* c, int ldc, bool accumulate)
         where TPanel : struct, IPanelRow
     {
@@ -307,6 +308,7 @@ internal static unsafe partial class CpuKernels
     }
 
     /// <summary>A 4 × 16 tile (quarter <paramref name="u"/> of a panel) in 128-bit vectors (16 accumulators).</summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static void MicroVector128<TPanel>(float** rows, byte* bp, int u, int k, float* bias, float* c, int ldc, bool accumulate)
         where TPanel : struct, IPanelRow
     {
@@ -355,6 +357,7 @@ internal static unsafe partial class CpuKernels
     }
 
     /// <summary>A 3 × 32 tile (half <paramref name="h"/> of a panel) in 256-bit vectors (12 accumulators).</summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static void MicroVector256<TPanel>(float** rows, byte* bp, int h, int k, float* bias, float* c, int ldc, bool accumulate)
         where TPanel : struct, IPanelRow
     {
@@ -396,6 +399,7 @@ internal static unsafe partial class CpuKernels
     }
 
     /// <summary>A 6 × 64 tile in 512-bit vectors (24 accumulators, 4 panel loads and 6 broadcasts per k).</summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static void MicroVector512<TPanel>(float** rows, byte* bp, int k, float* bias, float* c, int ldc, bool accumulate)
         where TPanel : struct, IPanelRow
     {

@@ -191,6 +191,7 @@ internal sealed class PackedMatrix
     public static float Widen(uint word, bool upper) =>
         BitConverter.UInt32BitsToSingle(upper ? word & 0xFFFF0000u : word << 16);
 
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static PackedMatrix Pack(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias,
         WeightPrecision precision)
     {
@@ -242,6 +243,7 @@ internal sealed class PackedMatrix
         }
     }
 
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static PackedMatrix PackPairs(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias)
     {
         int panels = (columns + PanelWidth - 1) / PanelWidth;
@@ -274,6 +276,7 @@ internal sealed class PackedMatrix
     /// Symmetric per-column int8: s_n = max_k |B[k, n]| / 127 (1 for an all-zero column) and
     /// q = round-to-even(B · (1 / s_n)), which lies in −127 … 127.
     /// </summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static PackedMatrix PackQuads(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias)
     {
         Check(source, rows, columns, bias);

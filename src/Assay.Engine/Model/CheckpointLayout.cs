@@ -31,7 +31,8 @@ internal abstract class CheckpointLayout
     public abstract IEnumerable<(string Name, long[] Shape)> ExpectedParameters(ModelConfig c);
 
     /// <summary>Converts and packs every parameter (after <see cref="Check"/>); throws on the first bad value.</summary>
-    public abstract ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath, WeightPrecision precision);
+    public abstract ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath, WeightPrecision precision,
+        CancellationToken cancellationToken);
 
     /// <summary>The bytes <see cref="Load"/> gives a model of this config in <paramref name="precision"/> (its <see cref="ModelWeights.Bytes"/>), without loading it.</summary>
     public abstract long WeightBytes(ModelConfig config, WeightPrecision precision);

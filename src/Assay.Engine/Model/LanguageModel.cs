@@ -16,14 +16,23 @@ namespace Assay.Model;
 public sealed class LanguageModel
 {
     private readonly ModelWeights _weights;
+    private readonly Task<IReadOnlyList<ModelFile>> _files;
 
-    private LanguageModel(string folder, ModelConfig config, TextTokenizer tokenizer, ModelWeights weights)
+    private LanguageModel(string folder, ModelConfig config, TextTokenizer tokenizer, ModelWeights weights, Task<IReadOnlyList<ModelFile>> files)
     {
         Folder = folder;
         Config = config;
         Tokenizer = tokenizer;
         _weights = weights;
+        _files = files;
     }
+
+    /// <summary>
+    /// The folder's files with their sizes and SHA-256 (<see cref="ModelFile.Describe"/>), hashed in the background from
+    /// the moment the model was opened; the first read waits for the hashing to end.
+    /// </summary>
+    /// <exception cref="IOException">A file could not be read.</exception>
+    public IReadOnlyList<ModelFile> Files => _files.GetAwaiter().GetResult();
 
     /// <summary>The output head: logits, distributions, log-probabilities and Φp from final hidden states.</summary>
     internal OutputHead Head => _weights.Head;
@@ -172,7 +181,11 @@ public sealed class LanguageModel
         return Open(folder, chosen);
     }
 
-    /// <summary>Opens a checkpoint folder: reads and validates config.json, the tokenizer and every tensor.</summary>
+    /// <summary>
+    /// Opens a checkpoint folder: reads and validates config.json, the tokenizer and every tensor. The tokenizer is read
+    /// on a second thread while the weights load (a tokenizer error stops the load at the next tensor and is the one
+    /// reported), and the folder's files are hashed on a third (<see cref="Files"/>).
+    /// </summary>
     /// <exception cref="ModelConfigException">config.json is missing, malformed or unsupported.</exception>
     /// <exception cref="WeightsFormatException">The weights are malformed or do not match the config.</exception>
     /// <exception cref="TokenizerFileException">The tokenizer files are malformed or do not fit the model.</exception>
@@ -193,11 +206,41 @@ public sealed class LanguageModel
         }
         string configPath = Path.Combine(folder, ModelConfig.FileName);
         ModelConfig config = ModelConfig.Load(configPath);
-        TextTokenizer tokenizer = TextTokenizer.OpenFolder(folder);
-        CheckTokenizer(tokenizer, config, configPath);
-        using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
-        ModelWeights weights = CheckpointLayout.For(config).Load(checkpoint, config, configPath, precision);
-        return new LanguageModel(folder, config, tokenizer, weights);
+        Task<IReadOnlyList<ModelFile>> files = Task.Run(() => ModelFile.Describe(folder));
+        using var tokenizerFailed = new CancellationTokenSource();
+        Task<TextTokenizer> tokenizer = Task.Run(() =>
+        {
+            try
+            {
+                TextTokenizer t = TextTokenizer.OpenFolder(folder);
+                CheckTokenizer(t, config, configPath);
+                return t;
+            }
+            catch
+            {
+                tokenizerFailed.Cancel();
+                throw;
+            }
+        });
+        ModelWeights weights;
+        try
+        {
+            using SafetensorsCheckpoint checkpoint = SafetensorsCheckpoint.Open(folder);
+            weights = CheckpointLayout.For(config).Load(checkpoint, config, configPath, precision, tokenizerFailed.Token);
+        }
+        catch (Exception) when (Finished(tokenizer).IsFaulted)
+        {
+            // The tokenizer's error comes first, as it did when the tokenizer was read before the weights.
+            throw tokenizer.Exception!.InnerException!;
+        }
+        return new LanguageModel(folder, config, tokenizer.GetAwaiter().GetResult(), weights, files);
+    }
+
+    /// <summary><paramref name="task"/> once it has ended, however it ended.</summary>
+    private static Task Finished(Task task)
+    {
+        Task.WaitAny(task);
+        return task;
     }
 
     /// <summary>Checks that every id the tokenizer gives is one the model's vocabulary has.</summary>

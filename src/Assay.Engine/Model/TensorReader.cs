@@ -1,4 +1,5 @@
 using System.Globalization;
+using System.Runtime.CompilerServices;
 using Assay.Kernels;
 using Assay.Weights;
 
@@ -8,8 +9,9 @@ namespace Assay.Model;
 /// Converts tensors one at a time. The matrices go through reused scratch buffers (sized for the largest tensor, or
 /// the largest stack of tensors packed as one) straight into their packed form, so loading leaves no float32 copies
 /// behind; each tensor's mapped file pages are released once it is converted, and every value is checked finite.
+/// A cancelled <paramref name="cancellationToken"/> stops the load before the next tensor.
 /// </summary>
-internal sealed class TensorReader(SafetensorsCheckpoint checkpoint, string prefix)
+internal sealed class TensorReader(SafetensorsCheckpoint checkpoint, string prefix, CancellationToken cancellationToken)
 {
     private float[] _scratch = [];
     private float[] _stack = [];
@@ -72,6 +74,7 @@ internal sealed class TensorReader(SafetensorsCheckpoint checkpoint, string pref
 
     private void Convert(string name, Span<float> values)
     {
+        cancellationToken.ThrowIfCancellationRequested();
         TensorInfo t = Info(name);
         checkpoint.ReadFloat32(t, values);
         checkpoint.ReleasePages(t);
@@ -83,6 +86,7 @@ internal sealed class TensorReader(SafetensorsCheckpoint checkpoint, string pref
         }
     }
 
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     private static int FirstNonFinite(ReadOnlySpan<float> values)
     {
         for (int i = 0; i < values.Length; i++)

@@ -222,7 +222,7 @@ public static class ExtractionRun
     {
         ExtractionOptions x = options.Extraction;
         var modelFiles = new JsonArray();
-        foreach (ModelFile f in ModelFile.Describe(model.Folder))
+        foreach (ModelFile f in model.Files)
         {
             modelFiles.Add(new JsonObject { ["name"] = f.Name, ["bytes"] = f.Bytes, ["sha256"] = f.Sha256 });
         }

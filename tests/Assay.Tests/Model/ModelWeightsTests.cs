@@ -1,6 +1,7 @@
 using Assay.Fixtures;
 using Assay.Model;
 using Assay.Tests.Support;
+using Assay.Tokenization;
 using Assay.Weights;
 
 namespace Assay.Tests.Model;
@@ -107,6 +108,42 @@ public sealed class ModelWeightsTests : IDisposable
         var e = Assert.Throws<WeightsFormatException>(() => LanguageModel.Open(folder));
         Assert.Equal("ln_f.bias", e.TensorName);
         Assert.Contains("element 2 is NaN", e.Message, StringComparison.Ordinal);
+    }
+
+    [Fact]
+    public void A_tokenizer_error_is_reported_before_a_weights_error()
+    {
+        // The tokenizer is read on a second thread while the weights load; when both are broken the tokenizer's error
+        // is the one reported, as when they were read one after the other (tokenizer first).
+        string folder = Rewrite(Small, tensors =>
+        {
+            int i = tensors.FindIndex(t => t.Name == "ln_f.bias");
+            byte[] data = (byte[])tensors[i].Data.Clone();
+            BitConverter.GetBytes(float.NaN).CopyTo(data, 8);
+            tensors[i] = tensors[i] with { Data = data };
+        });
+        File.WriteAllText(Path.Combine(folder, "vocab.json"), "{\"a\": 0, \"b\": ");
+        for (int attempt = 0; attempt < 5; attempt++)
+        {
+            var e = Assert.Throws<TokenizerFileException>(() => LanguageModel.Open(folder));
+            Assert.Contains("vocab.json", e.Message, StringComparison.Ordinal);
+        }
+    }
+
+    [Fact]
+    public void Files_are_the_folders_files_hashed_at_open()
+    {
+        string folder = SyntheticCheckpoint.Write(Small, _temp.File("hashed"));
+        LanguageModel model = LanguageModel.Open(folder);
+        // Reference: coreutils sha256sum over the same files, in ordinal name order.
+        string[] names = [.. Directory.GetFiles(folder).Select(Path.GetFileName).Order(StringComparer.Ordinal)!];
+        Assert.Equal(names, model.Files.Select(f => f.Name));
+        foreach (ModelFile f in model.Files)
+        {
+            string path = Path.Combine(folder, f.Name);
+            Assert.Equal(new FileInfo(path).Length, f.Bytes);
+            Assert.Equal(ChildProcess.Run("sha256sum", [path], folder).Split(' ')[0], f.Sha256);
+        }
     }
 
     [Fact]

@@ -65,7 +65,7 @@ public static partial class Study
         foreach ((string name, string folder) in spec.Models)
         {
             LanguageModel model = LanguageModel.Open(folder);
-            var modelFiles = new JsonArray([.. ModelFile.Describe(folder).Select(f => new JsonObject { ["name"] = f.Name, ["bytes"] = f.Bytes, ["sha256"] = f.Sha256 })]);
+            var modelFiles = new JsonArray([.. model.Files.Select(f => new JsonObject { ["name"] = f.Name, ["bytes"] = f.Bytes, ["sha256"] = f.Sha256 })]);
             steps.Begin(name + "/cross-entropy");
             var ceInputs = new JsonObject { ["model"] = modelFiles.DeepClone(), ["test"] = dataInputs["test"]!.DeepClone() };
             CrossEntropyResult ce = Cached(Path.Combine(cells, name + ".cross-entropy.json"), ceInputs,

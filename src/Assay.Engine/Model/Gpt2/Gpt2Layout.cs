@@ -55,10 +55,11 @@ internal sealed class Gpt2Layout : CheckpointLayout
     protected override bool IsBuffer(string name, string prefix, int layers) =>
         IsBlockTensor(name, prefix + "h.", layers, "attn.bias", "attn.masked_bias");
 
-    public override ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath, WeightPrecision precision)
+    public override ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath, WeightPrecision precision,
+        CancellationToken cancellationToken)
     {
         string prefix = Check(checkpoint, config, configPath).NamePrefix;
-        var reader = new TensorReader(checkpoint, prefix);
+        var reader = new TensorReader(checkpoint, prefix, cancellationToken);
         int d = config.Width, m = config.InnerWidth;
         (PackedMatrix tokenEmbedding, OutputHead head) = Tables(reader, checkpoint, config, configPath, prefix, precision);
         var embedding = new Gpt2Embedding(tokenEmbedding, reader.Read("wpe.weight"));

@@ -75,10 +75,11 @@ internal sealed class LlamaLayout : CheckpointLayout
         return name.Contains(".mlp.", StringComparison.Ordinal) ? string.Create(inv, $" (intermediate_size {c.InnerWidth})") : "";
     }
 
-    public override ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath, WeightPrecision precision)
+    public override ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath, WeightPrecision precision,
+        CancellationToken cancellationToken)
     {
         Check(checkpoint, config, configPath);
-        var reader = new TensorReader(checkpoint, "");
+        var reader = new TensorReader(checkpoint, "", cancellationToken);
         int d = config.Width, q = config.Heads * config.HeadWidth;
         (PackedMatrix tokens, OutputHead head) = Tables(reader, checkpoint, config, configPath, "", precision);
         var rotary = new RotaryEmbedding(config.Rotary!, config.ContextLength);

@@ -55,10 +55,11 @@ internal sealed class NeoXLayout : CheckpointLayout
         name.EndsWith(".attention.query_key_value.weight", StringComparison.Ordinal) ? " (q, k and v of every head, fused)"
         : name.Contains(".mlp.", StringComparison.Ordinal) ? $" (intermediate_size {c.InnerWidth})" : "";
 
-    public override ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath, WeightPrecision precision)
+    public override ModelWeights Load(SafetensorsCheckpoint checkpoint, ModelConfig config, string configPath, WeightPrecision precision,
+        CancellationToken cancellationToken)
     {
         Check(checkpoint, config, configPath);
-        var reader = new TensorReader(checkpoint, "");
+        var reader = new TensorReader(checkpoint, "", cancellationToken);
         int d = config.Width, m = config.InnerWidth;
         (PackedMatrix tokens, OutputHead head) = Tables(reader, checkpoint, config, configPath, "", precision);
         var rotary = new RotaryEmbedding(config.Rotary!, config.ContextLength);
