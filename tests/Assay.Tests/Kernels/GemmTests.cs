@@ -167,6 +167,36 @@ public sealed class GemmTests
     }
 
     [Theory]
+    [InlineData(false)]
+    [InlineData(true)]
+    public void BFloat16_packing_rounds_every_value_as_the_rounding_reference(bool transposed)
+    {
+        // The packer rounds eight values at a time; each must equal RoundToBFloat16 (float64 arithmetic, ties to even),
+        // ties, the largest finite values, subnormals and signed zeros included, at ragged edges of panels and blocks.
+        var rng = new DeterministicRandom(26);
+        float[] edges = [1.00390625f, 1.01171875f, -1.00390625f, 3.0e38f, -3.3e38f, float.MaxValue, 1e-38f, -1e-39f, float.Epsilon, 0f, -0f, 65504f];
+        int k = 37, n = 131;
+        float[] values = Random(ref rng, k * n);
+        for (int i = 0; i < values.Length; i += 7)
+        {
+            values[i] = edges[(i / 7) % edges.Length];
+        }
+        PackedMatrix p = transposed
+            ? PackedMatrix.FromTransposed(values, k, n, precision: WeightPrecision.BFloat16)
+            : PackedMatrix.FromRowMajor(values, k, n, precision: WeightPrecision.BFloat16);
+        float[] column = new float[k];
+        for (int j = 0; j < n; j++)
+        {
+            p.CopyColumn(j, column);
+            for (int r = 0; r < k; r++)
+            {
+                float x = transposed ? values[(j * k) + r] : values[(r * n) + j];
+                Assert.Equal(BitConverter.SingleToInt32Bits(RoundToBFloat16(x)), BitConverter.SingleToInt32Bits(column[r]));
+            }
+        }
+    }
+
+    [Theory]
     [MemberData(nameof(Int8Kernels))]
     public void Int8_panels_give_the_product_of_the_quantized_operands(Int8Kernel variant)
     {
