@@ -217,6 +217,10 @@ public static class ExtractionRun
     }
 
     /// <summary>Everything that decides the output bytes: a run can only be resumed with the same.</summary>
+    /// <summary>The engine's version with the commit it was built from, as record.json names it.</summary>
+    internal static string EngineVersion =>
+        typeof(ExtractionRun).Assembly.GetCustomAttribute<AssemblyInformationalVersionAttribute>()?.InformationalVersion ?? "unknown";
+
     private static JsonObject Settings(LanguageModel model, FeatureExtractor extractor, TextInputReader reader,
         RunOptions options, OutputFile[] outputs)
     {
@@ -232,11 +236,10 @@ public static class ExtractionRun
         {
             files.Add(new JsonObject { ["file"] = o.FileName, ["dtype"] = o.Descr, ["width"] = o.Output.Width });
         }
-        string version = typeof(ExtractionRun).Assembly.GetCustomAttribute<AssemblyInformationalVersionAttribute>()?.InformationalVersion ?? "unknown";
         var settings = new JsonObject
         {
             ["format_version"] = FormatVersion,
-            ["engine_version"] = version,
+            ["engine_version"] = EngineVersion,
             ["kernels"] = LanguageModel.Kernels.ToString(),
             ["model"] = new JsonObject
             {

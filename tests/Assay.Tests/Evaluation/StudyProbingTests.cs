@@ -74,6 +74,32 @@ public sealed class StudyProbingTests : IDisposable
     }
 
     [Fact]
+    public void Parts_made_by_another_engine_are_computed_again_and_the_log_says_so_first()
+    {
+        // A folder left by another engine version (an upgrade) used to stop the study at its first run ("a finished run
+        // made with a different engine version"); now the log says so before anything is computed, and every part —
+        // runs, cross-entropy, cells, probing parts — is made again by this engine, none kept.
+        string folder = _t.File("engines");
+        StudyResult old = Study.Run(StudySpec.Load(Write(mlp: 4)), folder, false, null, null, "0.0.1+earlier", CancellationToken.None);
+        var log = new List<string>();
+        StudyResult now = Study.Run(StudySpec.Load(Write(mlp: 4)), folder, log: new Sink<string>(log));
+        Assert.StartsWith("this folder's parts were computed by engine 0.0.1+earlier with ", log[0], StringComparison.Ordinal);
+        Assert.Contains("every extraction, cross-entropy and probe is computed again", log[0], StringComparison.Ordinal);
+        Assert.DoesNotContain(log, l => l.Contains("kept from an earlier run", StringComparison.Ordinal) || l.EndsWith("(already extracted)", StringComparison.Ordinal));
+        Assert.Contains(log, l => l.StartsWith("m/p/train: ", StringComparison.Ordinal));
+        string record = File.ReadAllText(Path.Combine(folder, StudyFolder.EngineFile));
+        Assert.Contains(Assay.Output.ExtractionRun.EngineVersion, record, StringComparison.Ordinal);
+        // The same engine underneath: the same numbers.
+        Assert.Equal(old.Cells.Select(c => c.Score.Accuracy), now.Cells.Select(c => c.Score.Accuracy));
+        Assert.Equal(old.Models.Select(m => m.CrossEntropy.NatsPerToken), now.Models.Select(m => m.CrossEntropy.NatsPerToken));
+        // And a third run by the same engine keeps everything, without the message.
+        log.Clear();
+        Study.Run(StudySpec.Load(Write(mlp: 4)), folder, log: new Sink<string>(log));
+        Assert.DoesNotContain(log, l => l.StartsWith("this folder's parts", StringComparison.Ordinal));
+        Assert.All(log.Where(l => l.StartsWith("m/p/", StringComparison.Ordinal) && !l.EndsWith("(already extracted)", StringComparison.Ordinal)), l => Assert.EndsWith("(kept from an earlier run)", l, StringComparison.Ordinal));
+    }
+
+    [Fact]
     public void The_layer_sweep_ends_at_the_hidden_cell_and_each_layer_is_the_probe_of_that_layer()
     {
         string folder = _t.File("out");

@@ -11,7 +11,7 @@ public static partial class Study
     /// The probing methods of one model and prompt, each part cached like a cell: a probe per layer, and the control
     /// task's selectivity of the linear (and MLP) probe on the last layer.
     /// </summary>
-    private sealed class Probing(StudySpec spec, string model, string prompt, string template, JsonArray modelFiles, JsonObject dataInputs,
+    private sealed class Probing(StudySpec spec, string model, string prompt, string template, JsonObject modelInputs, JsonObject dataInputs,
         IReadOnlyList<string> classes, string cells, string trainRun, string testRun, string trainFile, string testFile, StepTracker steps, IProgress<string>? log)
     {
         /// <summary>Seed of the control labels (the default of assay probe, so a study's control task is the command's).</summary>
@@ -19,7 +19,7 @@ public static partial class Study
 
         private JsonObject Inputs(string part) => new()
         {
-            ["model"] = modelFiles.DeepClone(),
+            ["model"] = modelInputs.DeepClone(),
             ["template"] = template,
             ["part"] = part,
             ["data"] = dataInputs.DeepClone(),

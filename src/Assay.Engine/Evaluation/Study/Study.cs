@@ -29,7 +29,16 @@ public static partial class Study
     /// <param name="cancellationToken">Stops between batches; a rerun continues.</param>
     /// <exception cref="StudyException">The folder holds another study or foreign files, a task file has a bad record, or a test label is unknown.</exception>
     public static StudyResult Run(StudySpec spec, string outFolder, bool overwrite = false, IProgress<string>? log = null,
-        IProgress<StudyProgress>? progress = null, CancellationToken cancellationToken = default)
+        IProgress<StudyProgress>? progress = null, CancellationToken cancellationToken = default) =>
+        Run(spec, outFolder, overwrite, log, progress, ExtractionRun.EngineVersion, cancellationToken);
+
+    /// <summary>
+    /// <see cref="Run(StudySpec, string, bool, IProgress{string}?, IProgress{StudyProgress}?, CancellationToken)"/> as
+    /// engine <paramref name="engineVersion"/>: every part's inputs name the engine and its kernel path, so parts made
+    /// by another engine (an upgrade, another machine's kernels) are computed again, never mixed with this one's.
+    /// </summary>
+    internal static StudyResult Run(StudySpec spec, string outFolder, bool overwrite, IProgress<string>? log,
+        IProgress<StudyProgress>? progress, string engineVersion, CancellationToken cancellationToken)
     {
         ArgumentNullException.ThrowIfNull(spec);
         ArgumentNullException.ThrowIfNull(outFolder);
@@ -42,6 +51,7 @@ public static partial class Study
         {
             StartOver(spec, outFolder, startOver);
         }
+        JsonObject engine = ClaimEngine(outFolder, engineVersion, log);
         string data = Directory.CreateDirectory(Path.Combine(outFolder, StudyFolder.DataFolder)).FullName;
         string trainFile = Subsample(spec.Train, spec.TrainEvery, spec.Probe.Folds, Path.Combine(data, "train.jsonl"));
         string testFile = Subsample(spec.Test, spec.TestEvery, 1, Path.Combine(data, "test.jsonl"));
@@ -65,9 +75,13 @@ public static partial class Study
         foreach ((string name, string folder) in spec.Models)
         {
             LanguageModel model = LanguageModel.Open(folder);
-            var modelFiles = new JsonArray([.. model.Files.Select(f => new JsonObject { ["name"] = f.Name, ["bytes"] = f.Bytes, ["sha256"] = f.Sha256 })]);
+            var modelInputs = new JsonObject
+            {
+                ["files"] = new JsonArray([.. model.Files.Select(f => new JsonObject { ["name"] = f.Name, ["bytes"] = f.Bytes, ["sha256"] = f.Sha256 })]),
+                ["engine"] = engine.DeepClone(),
+            };
             steps.Begin(name + "/cross-entropy");
-            var ceInputs = new JsonObject { ["model"] = modelFiles.DeepClone(), ["test"] = dataInputs["test"]!.DeepClone() };
+            var ceInputs = new JsonObject { ["model"] = modelInputs.DeepClone(), ["test"] = dataInputs["test"]!.DeepClone() };
             CrossEntropyResult ce = Cached(Path.Combine(cells, name + ".cross-entropy.json"), ceInputs,
                 () => CrossEntropy.Score(model, testTexts, progress: steps.Relay<ExtractionProgress>(p => (p.Rows, testTexts.Length, "texts", p.Tokens))),
                 WriteCrossEntropy, ReadCrossEntropy, out bool ceKept);
@@ -80,7 +94,7 @@ public static partial class Study
                 string runs = Path.Combine(outFolder, StudyFolder.RunsFolder, name, prompt);
                 var runInputs = new JsonObject
                 {
-                    ["model"] = modelFiles.DeepClone(),
+                    ["model"] = modelInputs.DeepClone(),
                     ["template"] = template,
                     ["features"] = new JsonArray([.. requests.Select(r => r.Describe())]),
                     ["data"] = dataInputs.DeepClone(),
@@ -109,7 +123,7 @@ public static partial class Study
                     bool zeroShot = feature == "zero-shot";
                     var cellInputs = new JsonObject
                     {
-                        ["model"] = modelFiles.DeepClone(),
+                        ["model"] = modelInputs.DeepClone(),
                         ["template"] = template,
                         ["feature"] = feature,
                         ["request"] = request.Describe(),
@@ -133,7 +147,7 @@ public static partial class Study
                     log?.Report(string.Create(CultureInfo.InvariantCulture,
                         $"{name}/{prompt}/{feature}: accuracy {cell.Score.Accuracy:P1} ({cell.Score.AccuracyLow:P1} – {cell.Score.AccuracyHigh:P1}), log loss {cell.Score.LogLoss:F3}{(cell.InverseRegularization is double c ? $", C = {c:G3}" : "")}{Kept(kept)}"));
                 }
-                var probing = new Probing(spec, name, prompt, template, modelFiles, dataInputs, classes.Classes, cells, Path.Combine(runs, "train"), Path.Combine(runs, "test"), trainFile, testFile, steps, log);
+                var probing = new Probing(spec, name, prompt, template, modelInputs, dataInputs, classes.Classes, cells, Path.Combine(runs, "train"), Path.Combine(runs, "test"), trainFile, testFile, steps, log);
                 if (spec.Layers)
                 {
                     layerCells.AddRange(probing.Layers(model.Config.Layers));
@@ -384,7 +398,27 @@ public static partial class Study
     }
 
     /// <summary>
-    /// The runs of one model and prompt are kept only if they were extracted from the same inputs (model files,
+    /// The engine that computes this run of the study, written to engine.json; when the folder's parts were computed by
+    /// another (or by one that did not record itself), the log says so before anything is computed: every part's
+    /// inputs name the engine, so all of them are computed again.
+    /// </summary>
+    private static JsonObject ClaimEngine(string folder, string version, IProgress<string>? log)
+    {
+        var engine = new JsonObject { ["version"] = version, ["kernels"] = LanguageModel.Kernels.ToString() };
+        string path = Path.Combine(folder, StudyFolder.EngineFile);
+        JsonNode? stored = File.Exists(path) ? ReadJson(path) : null;
+        bool earlierParts = Directory.Exists(Path.Combine(folder, StudyFolder.CellsFolder)) || Directory.Exists(Path.Combine(folder, StudyFolder.RunsFolder));
+        if (earlierParts && !JsonNode.DeepEquals(stored, engine))
+        {
+            string before = stored is null ? "an engine that did not record itself" : $"engine {stored["version"]} with {stored["kernels"]} kernels";
+            log?.Report($"this folder's parts were computed by {before}; this is engine {version} with {engine["kernels"]} kernels: every extraction, cross-entropy and probe is computed again");
+        }
+        AtomicFile.WriteJson(path, engine);
+        return engine;
+    }
+
+    /// <summary>
+    /// The runs of one model and prompt are kept only if they were extracted from the same inputs (model files, engine,
     /// template, every feature request, data); otherwise both splits go, to be extracted again.
     /// </summary>
     private static void ClaimRuns(string runs, JsonObject inputs)

@@ -29,6 +29,9 @@ public static class StudyFolder
     /// <summary>The report as one self-contained page: tables, plots inline, the study file, the models' file hashes.</summary>
     public const string HtmlFile = "report.html";
 
+    /// <summary>The engine (version and kernel path) that computed the folder's parts, as the last run found it.</summary>
+    public const string EngineFile = "engine.json";
+
     private const string AccuracyPrefix = "accuracy.";
 
     private const string LossPrefix = "loss-vs-cross-entropy.";
@@ -48,7 +51,7 @@ public static class StudyFolder
 
     /// <summary>Whether an entry of this name belongs in a study folder (a part of the study or a report file).</summary>
     internal static bool Owns(string name) =>
-        Output.FolderLock.IsLockFile(name) || name is SpecFile or DataFolder or RunsFolder or CellsFolder or MarkdownFile or CsvFile or HtmlFile
+        Output.FolderLock.IsLockFile(name) || name is SpecFile or EngineFile or DataFolder or RunsFolder or CellsFolder or MarkdownFile or CsvFile or HtmlFile
         || (name.EndsWith(PlotSuffix, StringComparison.Ordinal)
             && (name.StartsWith(AccuracyPrefix, StringComparison.Ordinal) || name.StartsWith(LossPrefix, StringComparison.Ordinal)
                 || name.StartsWith(LayersPrefix, StringComparison.Ordinal)));
