@@ -1,4 +1,5 @@
 using System.Diagnostics;
+using System.Numerics.Tensors;
 using System.Runtime.CompilerServices;
 using System.Runtime.Intrinsics;
 using Assay.Weights;
@@ -105,13 +106,109 @@ internal sealed class PackedMatrix
     /// <summary>Packs a row-major K × N matrix (the [in, out] layout of GPT-2's projection layers).</summary>
     public static PackedMatrix FromRowMajor(ReadOnlySpan<float> b, int rows, int columns, ReadOnlySpan<float> bias = default,
         WeightPrecision precision = WeightPrecision.Binary32) =>
-        precision == WeightPrecision.Integer8 ? PackQuads(b, rows, columns, transposed: false, bias) : Pack(b, rows, columns, transposed: false, bias, precision);
+        precision == WeightPrecision.Integer8 ? PackQuads(b, rows, columns, bias) : Pack(b, rows, columns, bias, precision);
 
     /// <summary>Packs the transpose of a row-major N × K matrix (an [out, in] layout: the token embedding used as the
     /// output head, logits = h · Eᵀ, and the linear layers of the rotary families, y = x · Wᵀ + b).</summary>
-    public static PackedMatrix FromTransposed(ReadOnlySpan<float> bt, int rows, int columns, ReadOnlySpan<float> bias = default,
-        WeightPrecision precision = WeightPrecision.Binary32) =>
-        precision == WeightPrecision.Integer8 ? PackQuads(bt, rows, columns, transposed: true, bias) : Pack(bt, rows, columns, transposed: true, bias, precision);
+    public static unsafe PackedMatrix FromTransposed(ReadOnlySpan<float> bt, int rows, int columns, ReadOnlySpan<float> bias = default,
+        WeightPrecision precision = WeightPrecision.Binary32)
+    {
+        Check(bt, rows, columns, bias);
+        fixed (float* pinned = bt)
+        {
+            float* source = pinned;
+            return FromTransposedRows(rows, columns, (first, count) => new ReadOnlySpan<float>(source + ((long)first * rows), count * rows), bias, precision);
+        }
+    }
+
+    /// <summary>
+    /// Rows <paramref name="first"/> … <paramref name="first"/> + <paramref name="count"/> − 1 of an N × K row-major
+    /// source (count·K floats), valid until the next call.
+    /// </summary>
+    internal delegate ReadOnlySpan<float> SourceRows(int first, int count);
+
+    /// <summary>
+    /// <see cref="FromTransposed"/> from a source read one panel (64 of its rows) at a time, so the source is never
+    /// whole in memory: each panel's rows are gathered through a 16-row block into rows of k and written out as
+    /// float32, rounded to bfloat16, or (int8) scaled per column by its largest magnitude and rounded.
+    /// </summary>
+    [MethodImpl(MethodImplOptions.AggressiveOptimization)]
+    internal static unsafe PackedMatrix FromTransposedRows(int rows, int columns, SourceRows read, ReadOnlySpan<float> bias, WeightPrecision precision)
+    {
+        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(rows);
+        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(columns);
+        if (!bias.IsEmpty && bias.Length != columns)
+        {
+            throw new ArgumentException($"bias holds {bias.Length} values; expected {columns}", nameof(bias));
+        }
+        const int Block = 16;
+        int panels = (columns + PanelWidth - 1) / PanelWidth, groups = (rows + QuadDepth - 1) / QuadDepth;
+        float[]? data = precision == WeightPrecision.Binary32 ? GC.AllocateArray<float>(checked(panels * rows * PanelWidth), pinned: true) : null;
+        uint[]? pairs = precision == WeightPrecision.BFloat16 ? GC.AllocateArray<uint>(checked(panels * rows * PairWidth), pinned: true) : null;
+        bool integer = precision == WeightPrecision.Integer8;
+        sbyte[]? quads = integer ? GC.AllocateArray<sbyte>(checked(panels * groups * PanelWidth * QuadDepth), pinned: true) : null;
+        float[]? scales = integer ? GC.AllocateArray<float>(panels * PanelWidth, pinned: true) : null;
+        int[]? sums = integer ? GC.AllocateArray<int>(panels * PanelWidth, pinned: true) : null;
+        Span<float> inverse = stackalloc float[PanelWidth];
+        Span<float> block = stackalloc float[Block * PanelWidth];
+        for (int p = 0; p < panels; p++)
+        {
+            int n0 = p * PanelWidth;
+            int width = Math.Min(PanelWidth, columns - n0);
+            ReadOnlySpan<float> chunk = read(n0, width);
+            if (integer)
+            {
+                // Symmetric per column: s_n = max_k |B[k, n]| / 127 (1 for an all-zero column), q = round-to-even(B · (1 / s_n)).
+                for (int j = 0; j < width; j++)
+                {
+                    float max = MathF.Abs(TensorPrimitives.MaxMagnitude(chunk.Slice(j * rows, rows)));
+                    scales![n0 + j] = max > 0 ? max / 127f : 1f;
+                    inverse[j] = 1f / scales[n0 + j];
+                }
+            }
+            block.Clear();
+            fixed (float* from = chunk, to = block)
+            {
+                for (int k0 = 0; k0 < rows; k0 += Block)
+                {
+                    int depth = Math.Min(Block, rows - k0);
+                    for (int j = 0; j < width; j++)
+                    {
+                        float* run = from + ((long)j * rows) + k0;
+                        for (int i = 0; i < depth; i++)
+                        {
+                            to[(i * PanelWidth) + j] = run[i];
+                        }
+                    }
+                    for (int i = 0; i < depth; i++)
+                    {
+                        Span<float> row = block.Slice(i * PanelWidth, PanelWidth);
+                        int k = k0 + i;
+                        if (data is not null)
+                        {
+                            row.CopyTo(data.AsSpan((p * rows * PanelWidth) + (k * PanelWidth), PanelWidth));
+                        }
+                        else if (pairs is not null)
+                        {
+                            ToBFloat16Row(row, pairs.AsSpan((p * rows * PairWidth) + (k * PairWidth), PairWidth));
+                        }
+                        else
+                        {
+                            long at = ((((long)p * groups) + (k / QuadDepth)) * PanelWidth * QuadDepth) + (k % QuadDepth);
+                            for (int j = 0; j < width; j++)
+                            {
+                                int q = (int)Math.Clamp(MathF.Round(row[j] * inverse[j]), -127f, 127f);
+                                quads![at + (j * QuadDepth)] = (sbyte)q;
+                                sums![n0 + j] += q;
+                            }
+                        }
+                    }
+                }
+            }
+        }
+        float[]? padded = PadBias(bias, panels);
+        return integer ? new PackedMatrix(rows, columns, quads!, scales!, sums!, padded) : new PackedMatrix(rows, columns, data, pairs, padded);
+    }
 
     /// <summary>Copies column n of B (K values; for a transposed pack, row n of the source) into destination.</summary>
     public void CopyColumn(int n, Span<float> destination)
@@ -192,14 +289,13 @@ internal sealed class PackedMatrix
         BitConverter.UInt32BitsToSingle(upper ? word & 0xFFFF0000u : word << 16);
 
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
-    private static PackedMatrix Pack(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias,
-        WeightPrecision precision)
+    private static PackedMatrix Pack(ReadOnlySpan<float> source, int rows, int columns, ReadOnlySpan<float> bias, WeightPrecision precision)
     {
         Check(source, rows, columns, bias);
 
         if (precision == WeightPrecision.BFloat16)
         {
-            return PackPairs(source, rows, columns, transposed, bias);
+            return PackPairs(source, rows, columns, bias);
         }
 
         int panels = (columns + PanelWidth - 1) / PanelWidth;
@@ -211,18 +307,7 @@ internal sealed class PackedMatrix
             Span<float> panel = data.AsSpan(p * rows * PanelWidth, rows * PanelWidth);
             for (int k = 0; k < rows; k++)
             {
-                Span<float> dst = panel.Slice(k * PanelWidth, width);
-                if (transposed)
-                {
-                    for (int j = 0; j < width; j++)
-                    {
-                        dst[j] = source[((n0 + j) * rows) + k];
-                    }
-                }
-                else
-                {
-                    source.Slice((k * columns) + n0, width).CopyTo(dst);
-                }
+                source.Slice((k * columns) + n0, width).CopyTo(panel.Slice(k * PanelWidth, width));
             }
         }
 
@@ -243,48 +328,22 @@ internal sealed class PackedMatrix
         }
     }
 
-    /// <summary>
-    /// The bfloat16 panels: each panel's 64 columns gathered as rows of k (a transposed source through a 16-row block
-    /// buffer, so both sides are read in runs), then each row rounded by <see cref="ToBFloat16Row"/>.
-    /// </summary>
+    /// <summary>The bfloat16 panels of a row-major source, each row of a panel rounded by <see cref="ToBFloat16Row"/>.</summary>
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
-    private static unsafe PackedMatrix PackPairs(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias)
+    private static PackedMatrix PackPairs(ReadOnlySpan<float> source, int rows, int columns, ReadOnlySpan<float> bias)
     {
-        const int Block = 16;
         int panels = (columns + PanelWidth - 1) / PanelWidth;
         uint[] pairs = GC.AllocateArray<uint>(checked(panels * rows * PairWidth), pinned: true);
-        Span<float> block = stackalloc float[Block * PanelWidth];
+        Span<float> row = stackalloc float[PanelWidth];
         for (int p = 0; p < panels; p++)
         {
             int n0 = p * PanelWidth;
             int width = Math.Min(PanelWidth, columns - n0);
-            block.Clear();
-            for (int k0 = 0; k0 < rows; k0 += Block)
+            row.Clear();
+            for (int k = 0; k < rows; k++)
             {
-                int depth = Math.Min(Block, rows - k0);
-                if (transposed)
-                {
-                    fixed (float* from = source, to = block)
-                    {
-                        for (int j = 0; j < width; j++)
-                        {
-                            float* run = from + ((long)(n0 + j) * rows) + k0;
-                            for (int i = 0; i < depth; i++)
-                            {
-                                to[(i * PanelWidth) + j] = run[i];
-                            }
-                        }
-                    }
-                }
-                for (int i = 0; i < depth; i++)
-                {
-                    Span<float> row = block.Slice(i * PanelWidth, PanelWidth);
-                    if (!transposed)
-                    {
-                        source.Slice(((k0 + i) * columns) + n0, width).CopyTo(row);
-                    }
-                    ToBFloat16Row(row, pairs.AsSpan((p * rows * PairWidth) + ((k0 + i) * PairWidth), PairWidth));
-                }
+                source.Slice((k * columns) + n0, width).CopyTo(row);
+                ToBFloat16Row(row, pairs.AsSpan((p * rows * PairWidth) + (k * PairWidth), PairWidth));
             }
         }
 
@@ -333,7 +392,7 @@ internal sealed class PackedMatrix
     /// q = round-to-even(B · (1 / s_n)), which lies in −127 … 127.
     /// </summary>
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
-    private static PackedMatrix PackQuads(ReadOnlySpan<float> source, int rows, int columns, bool transposed, ReadOnlySpan<float> bias)
+    private static PackedMatrix PackQuads(ReadOnlySpan<float> source, int rows, int columns, ReadOnlySpan<float> bias)
     {
         Check(source, rows, columns, bias);
         int panels = (columns + PanelWidth - 1) / PanelWidth;
@@ -346,7 +405,7 @@ internal sealed class PackedMatrix
             float max = 0;
             for (int k = 0; k < rows; k++)
             {
-                max = MathF.Max(max, MathF.Abs(source[transposed ? (n * rows) + k : (k * columns) + n]));
+                max = MathF.Max(max, MathF.Abs(source[(k * columns) + n]));
             }
             scales[n] = max > 0 ? max / 127f : 1f;
             inverse[n] = 1f / scales[n];
@@ -357,7 +416,7 @@ internal sealed class PackedMatrix
             int g = k / QuadDepth, kk = k % QuadDepth;
             for (int n = 0; n < columns; n++)
             {
-                int q = (int)Math.Clamp(MathF.Round(source[transposed ? (n * rows) + k : (k * columns) + n] * inverse[n]), -127f, 127f);
+                int q = (int)Math.Clamp(MathF.Round(source[(k * columns) + n] * inverse[n]), -127f, 127f);
                 int p = n / PanelWidth, j = n % PanelWidth;
                 quads[((((long)p * groups) + g) * PanelWidth * QuadDepth) + (j * QuadDepth) + kk] = (sbyte)q;
                 sums[n] += q;

@@ -118,11 +118,11 @@ internal abstract class CheckpointLayout
         int d = config.Width, v = config.VocabularySize;
         WeightPrecision tables = TablePrecision(precision);
         string embeddingName = prefix + EmbeddingName;
-        PackedMatrix embedding = PackedMatrix.FromTransposed(reader.Scratch(embeddingName), d, v, precision: tables);
+        PackedMatrix embedding = reader.Transposed(embeddingName, d, tables);
         PackedMatrix head = embedding;
         if (!config.TiedHead)
         {
-            head = PackedMatrix.FromTransposed(reader.Scratch(HeadName), d, v, precision: tables);
+            head = reader.Transposed(HeadName, d, tables);
         }
         else if (checkpoint.TryGetTensor(HeadName, out _))
         {

@@ -6,15 +6,16 @@ using Assay.Weights;
 namespace Assay.Model;
 
 /// <summary>
-/// Converts tensors one at a time. The matrices go through reused scratch buffers (sized for the largest tensor, or
-/// the largest stack of tensors packed as one) straight into their packed form, so loading leaves no float32 copies
-/// behind; each tensor's mapped file pages are released once it is converted, and every value is checked finite.
+/// Converts tensors one at a time. Matrices stored [out, in] (the token embedding, the head, the rotary families'
+/// layers, stacked or not) are read one panel of 64 rows at a time into a small scratch buffer and packed from there;
+/// GPT-2's [in, out] matrices go whole through a scratch buffer sized for the largest. Loading leaves no float32
+/// copies behind; each tensor's mapped file pages are released once it is packed, and every value is checked finite.
 /// A cancelled <paramref name="cancellationToken"/> stops the load before the next tensor.
 /// </summary>
 internal sealed class TensorReader(SafetensorsCheckpoint checkpoint, string prefix, CancellationToken cancellationToken)
 {
     private float[] _scratch = [];
-    private float[] _stack = [];
+    private float[] _rows = [];
 
     /// <summary>A small tensor (norm gains, biases, position embeddings), as its own array.</summary>
     public float[] Read(string name) => Scratch(prefix + name).ToArray();
@@ -45,25 +46,62 @@ internal sealed class TensorReader(SafetensorsCheckpoint checkpoint, string pref
     /// </summary>
     public PackedMatrix Linear(IReadOnlyList<string> weights, IReadOnlyList<string>? biases, int inputs, WeightPrecision precision)
     {
-        long total = 0;
-        foreach (string w in weights)
-        {
-            total += Info(prefix + w).ElementCount;
-        }
-        if (_stack.LongLength < total)
-        {
-            _stack = new float[total];
-        }
-        Span<float> stack = _stack.AsSpan(0, checked((int)total));
-        int offset = 0;
-        foreach (string w in weights)
-        {
-            int n = (int)Info(prefix + w).ElementCount;
-            Convert(prefix + w, stack.Slice(offset, n));
-            offset += n;
-        }
+        TensorInfo[] parts = [.. weights.Select(w => Info(prefix + w))];
         float[] bias = biases is null ? [] : [.. biases.SelectMany(Read)];
-        return PackedMatrix.FromTransposed(stack, inputs, (int)(total / inputs), bias, precision);
+        return Transposed(parts, inputs, bias, precision);
+    }
+
+    /// <summary>A tensor stored [out, in] (N × K, K = <paramref name="rows"/>) packed as its K × N transpose, without a bias.</summary>
+    public PackedMatrix Transposed(string name, int rows, WeightPrecision precision) => Transposed([Info(name)], rows, [], precision);
+
+    /// <summary>
+    /// Tensors stored [out, in] with K = <paramref name="inputs"/> stacked along their outputs, packed as one K × N
+    /// matrix from panels of 64 stacked rows read straight from the file (a panel may span two tensors).
+    /// </summary>
+    private PackedMatrix Transposed(TensorInfo[] parts, int inputs, float[] bias, WeightPrecision precision)
+    {
+        long total = parts.Sum(t => t.ElementCount);
+        int columns = (int)(total / inputs);
+        if (_rows.Length < PackedMatrix.PanelWidth * inputs)
+        {
+            _rows = new float[PackedMatrix.PanelWidth * inputs];
+        }
+        PackedMatrix packed = PackedMatrix.FromTransposedRows(inputs, columns, (first, count) =>
+        {
+            Span<float> into = _rows.AsSpan(0, count * inputs);
+            int filled = 0;
+            long start = 0;
+            foreach (TensorInfo t in parts)
+            {
+                int tensorRows = (int)(t.ElementCount / inputs);
+                int from = Math.Max(first + filled, (int)start) - (int)start, until = Math.Min(first + count, (int)start + tensorRows) - (int)start;
+                if (until > from)
+                {
+                    ConvertRows(t, from, until - from, inputs, into.Slice(filled * inputs, (until - from) * inputs));
+                    filled += until - from;
+                }
+                start += tensorRows;
+            }
+            return into;
+        }, bias, precision);
+        foreach (TensorInfo t in parts)
+        {
+            checkpoint.ReleasePages(t);
+        }
+        return packed;
+    }
+
+    /// <summary>Rows <paramref name="first"/> … of a tensor of <paramref name="width"/> columns, converted and checked finite.</summary>
+    private void ConvertRows(TensorInfo t, int first, int count, int width, Span<float> values)
+    {
+        cancellationToken.ThrowIfCancellationRequested();
+        checkpoint.ReadFloat32(t, (long)first * width, values);
+        int bad = FirstNonFinite(values);
+        if (bad >= 0)
+        {
+            throw new WeightsFormatException(t.FilePath, t.Name,
+                $"element {((long)first * width) + bad} is {values[bad].ToString(CultureInfo.InvariantCulture)}; parameters must be finite");
+        }
     }
 
     private TensorInfo Info(string name)

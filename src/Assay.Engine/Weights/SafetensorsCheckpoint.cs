@@ -120,6 +120,10 @@ public sealed class SafetensorsCheckpoint : IDisposable
     }
 
     /// <summary>Lets the tensor's mapped pages go once it has been converted (see <see cref="SafetensorsFile"/>).</summary>
+    /// <summary>Elements <paramref name="first"/> … of a tensor of this checkpoint, converted to float32.</summary>
+    internal void ReadFloat32(TensorInfo tensor, long first, Span<float> destination) =>
+        _byName[tensor.Name].File.ReadFloat32(tensor, first, destination);
+
     internal void ReleasePages(TensorInfo tensor)
     {
         if (_byName.TryGetValue(tensor.Name, out (TensorInfo Info, SafetensorsFile File) entry))
