@@ -95,33 +95,31 @@ public sealed class ModelWeightsTests : IDisposable
         Assert.Contains("differs from wte.weight", e.Message, StringComparison.Ordinal);
     }
 
-    [Fact]
-    public void Refuses_a_non_finite_parameter()
+    [Theory]
+    [InlineData("ln_f.bias", 2)]
+    [InlineData("wte.weight", (16 * 70) + 3)]   // the embedding is packed a panel of 64 rows at a time: row 70 is in the second
+    public void Refuses_a_non_finite_parameter(string tensor, int element)
     {
-        string folder = Rewrite(Small, tensors =>
-        {
-            int i = tensors.FindIndex(t => t.Name == "ln_f.bias");
-            byte[] data = (byte[])tensors[i].Data.Clone();
-            BitConverter.GetBytes(float.NaN).CopyTo(data, 8);
-            tensors[i] = tensors[i] with { Data = data };
-        });
+        string folder = WithNaN(tensor, element);
         var e = Assert.Throws<WeightsFormatException>(() => LanguageModel.Open(folder));
-        Assert.Equal("ln_f.bias", e.TensorName);
-        Assert.Contains("element 2 is NaN", e.Message, StringComparison.Ordinal);
+        Assert.Equal(tensor, e.TensorName);
+        Assert.Contains($"element {element} is NaN", e.Message, StringComparison.Ordinal);
     }
+
+    private string WithNaN(string tensor, int element) => Rewrite(Small, tensors =>
+    {
+        int i = tensors.FindIndex(t => t.Name == tensor);
+        byte[] data = (byte[])tensors[i].Data.Clone();
+        BitConverter.GetBytes(float.NaN).CopyTo(data, element * sizeof(float));
+        tensors[i] = tensors[i] with { Data = data };
+    });
 
     [Fact]
     public void A_tokenizer_error_is_reported_before_a_weights_error()
     {
         // The tokenizer is read on a second thread while the weights load; when both are broken the tokenizer's error
         // is the one reported, as when they were read one after the other (tokenizer first).
-        string folder = Rewrite(Small, tensors =>
-        {
-            int i = tensors.FindIndex(t => t.Name == "ln_f.bias");
-            byte[] data = (byte[])tensors[i].Data.Clone();
-            BitConverter.GetBytes(float.NaN).CopyTo(data, 8);
-            tensors[i] = tensors[i] with { Data = data };
-        });
+        string folder = WithNaN("ln_f.bias", 2);
         File.WriteAllText(Path.Combine(folder, "vocab.json"), "{\"a\": 0, \"b\": ");
         for (int attempt = 0; attempt < 5; attempt++)
         {
