@@ -102,6 +102,7 @@ internal sealed class TensorReader(SafetensorsCheckpoint checkpoint, string pref
             throw new WeightsFormatException(t.FilePath, t.Name,
                 $"element {((long)first * width) + bad} is {values[bad].ToString(CultureInfo.InvariantCulture)}; parameters must be finite");
         }
+        checkpoint.ReleasePages(t, (long)first * width, values.Length);
     }
 
     private TensorInfo Info(string name)

@@ -124,6 +124,9 @@ public sealed class SafetensorsCheckpoint : IDisposable
     internal void ReadFloat32(TensorInfo tensor, long first, Span<float> destination) =>
         _byName[tensor.Name].File.ReadFloat32(tensor, first, destination);
 
+    /// <summary>Releases the mapped pages of elements <paramref name="first"/> … <paramref name="first"/> + <paramref name="count"/> − 1 of a tensor (see <see cref="SafetensorsFile.ReleasePages(TensorInfo, long, long)"/>).</summary>
+    internal void ReleasePages(TensorInfo tensor, long first, long count) => _byName[tensor.Name].File.ReleasePages(tensor, first, count);
+
     internal void ReleasePages(TensorInfo tensor)
     {
         if (_byName.TryGetValue(tensor.Name, out (TensorInfo Info, SafetensorsFile File) entry))

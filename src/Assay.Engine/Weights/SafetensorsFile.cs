@@ -2,6 +2,7 @@ using System.Buffers.Binary;
 using System.IO.MemoryMappedFiles;
 using System.Numerics.Tensors;
 using System.Runtime.InteropServices;
+using System.Runtime.Intrinsics;
 using System.Text.Json;
 
 namespace Assay.Weights;
@@ -182,20 +183,23 @@ public sealed unsafe class SafetensorsFile : IDisposable
     /// whole pages it spans), so a converted checkpoint does not stay resident beside its converted copy. The mapping
     /// is read-only and file-backed: a later read faults the pages in again from the page cache. Elsewhere a no-op.
     /// </summary>
-    internal void ReleasePages(TensorInfo tensor)
+    internal void ReleasePages(TensorInfo tensor) => ReleasePages(tensor, 0, tensor.ElementCount);
+
+    /// <summary><see cref="ReleasePages(TensorInfo)"/> for the whole pages inside elements <paramref name="first"/> … <paramref name="first"/> + <paramref name="count"/> − 1.</summary>
+    internal void ReleasePages(TensorInfo tensor, long first, long count)
     {
-        if (!OperatingSystem.IsLinux() || tensor.ByteLength == 0 || _view.SafeMemoryMappedViewHandle.IsClosed)
+        if (!OperatingSystem.IsLinux() || count <= 0 || _view.SafeMemoryMappedViewHandle.IsClosed)
         {
             return;
         }
-        long page = Environment.SystemPageSize;
-        long begin = (long)(_base + _dataStart + tensor.DataBegin);
-        long end = begin + tensor.ByteLength;
-        long first = (begin + page - 1) / page * page;   // whole pages inside the tensor only
-        long last = end / page * page;
-        if (last > first)
+        long page = Environment.SystemPageSize, size = tensor.DType.SizeInBytes();
+        long begin = (long)(_base + _dataStart + tensor.DataBegin) + (first * size);
+        long end = begin + (count * size);
+        long from = (begin + page - 1) / page * page;   // whole pages inside the range only
+        long to = end / page * page;
+        if (to > from)
         {
-            _ = NativeMethods.madvise((nint)first, (nuint)(last - first), NativeMethods.MadviseDontNeed);
+            _ = NativeMethods.madvise((nint)from, (nuint)(to - from), NativeMethods.MadviseDontNeed);
         }
     }
 
@@ -207,7 +211,17 @@ public sealed unsafe class SafetensorsFile : IDisposable
     internal static void WidenBFloat16(ReadOnlySpan<ushort> source, Span<float> destination)
     {
         Span<uint> bits = MemoryMarshal.Cast<float, uint>(destination);
-        for (int i = 0; i < source.Length; i++)
+        int i = 0;
+        if (Vector256.IsHardwareAccelerated)
+        {
+            for (; i + 16 <= source.Length; i += 16)
+            {
+                (Vector256<uint> lower, Vector256<uint> upper) = Vector256.Widen(Vector256.Create(source.Slice(i, 16)));
+                (lower << 16).CopyTo(bits.Slice(i, 8));
+                (upper << 16).CopyTo(bits.Slice(i + 8, 8));
+            }
+        }
+        for (; i < source.Length; i++)
         {
             bits[i] = (uint)source[i] << 16;
         }
