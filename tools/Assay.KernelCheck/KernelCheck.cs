@@ -12,9 +12,8 @@ namespace Assay.KernelCheck;
 /// <summary>
 /// Runs the GEMM (float32, bfloat16 and int8 panels, with bias, accumulation and a fused activation), Φp and attention
 /// on every kernel path this CPU has, and compares each output with the scalar path's bits; then, given a model, extracts
-/// features of fixed texts in float32 and int8 on the default paths (and can write them out, as raw little-endian
-/// float32). Every check prints a digest of its outputs (the first 16 hex digits of their SHA-256), so runs on two
-/// machines can be compared line by line.
+/// features of fixed texts in float32 and int8 on the default paths. Every check prints a digest of its outputs (the
+/// first 16 hex digits of their SHA-256), so runs on two machines can be compared line by line.
 /// </summary>
 public static class KernelCheck
 {
@@ -38,11 +37,8 @@ public static class KernelCheck
         (1, 16, 2, 2, 0), (37, 48, 4, 4, 0), (70, 64, 4, 2, 0), (130, 96, 6, 2, 9), (300, 64, 1, 1, 0),
     ];
 
-    /// <summary>
-    /// Runs the checks, writing one line each to <paramref name="output"/>; with <paramref name="valuesFolder"/> the model
-    /// features go to float32.bin and int8.bin there. Returns 0 when every path gave the scalar bits, else 1.
-    /// </summary>
-    public static int Run(string? modelFolder, string? valuesFolder, TextWriter output)
+    /// <summary>Runs the checks, writing one line each to <paramref name="output"/>; 0 when every path gave the scalar bits, else 1.</summary>
+    public static int Run(string? modelFolder, TextWriter output)
     {
         ArgumentNullException.ThrowIfNull(output);
         KernelVariant[] variants = [.. Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported)];
@@ -54,13 +50,14 @@ public static class KernelCheck
         {
             failures += Gemm(precision, variants, integer, output);
         }
+        failures += Sums(variants, output);
         failures += ConditionalMean(variants, output);
         failures += Attention(variants, output);
         if (modelFolder is not null)
         {
             foreach (WeightPrecision precision in new[] { WeightPrecision.Binary32, WeightPrecision.Integer8 })
             {
-                Model(modelFolder, precision, valuesFolder, output);
+                Model(modelFolder, precision, output);
             }
         }
         output.WriteLine(failures == 0 ? "every path gave the scalar path's bits" : $"{failures} checks differ from the scalar path");
@@ -114,6 +111,28 @@ public static class KernelCheck
         CpuKernels.Gemm(a, m, k, b, accumulated, n, accumulate: true, variant, int8: path);
         CpuKernels.Gemm(a, m, k, b, fused, n, accumulate: false, variant, epilogue: Activation.GeluTanh, int8: path);
         return [plain, accumulated, fused];
+    }
+
+    private static int Sums(KernelVariant[] variants, TextWriter output)
+    {
+        var rng = new SplitMix(23);
+        var digest = new Digest();
+        int failures = 0;
+        foreach (int n in new[] { 1, 15, 16, 17, 100, 768, 4099 })
+        {
+            float[] x = rng.Floats(n);
+            foreach (bool squares in new[] { false, true })
+            {
+                float[] scalar = [CpuKernels.LaneSum(x, squares, KernelVariant.Scalar)];
+                digest.Add(scalar);
+                foreach (KernelVariant variant in variants)
+                {
+                    failures += Compare(output, $"sum{(squares ? " of squares" : "")} {variant} n={n}", scalar, [CpuKernels.LaneSum(x, squares, variant)]);
+                }
+            }
+        }
+        output.WriteLine($"sums: 7 lengths, plain and of squares, {(failures == 0 ? "same bits" : $"{failures} differ")}; digest {digest}");
+        return failures;
     }
 
     private static int ConditionalMean(KernelVariant[] variants, TextWriter output)
@@ -173,7 +192,7 @@ public static class KernelCheck
     }
 
     /// <summary>Hidden states (every layer, last position) and Φp of <see cref="Texts"/> on this process's default paths.</summary>
-    private static void Model(string folder, WeightPrecision precision, string? valuesFolder, TextWriter output)
+    private static void Model(string folder, WeightPrecision precision, TextWriter output)
     {
         LanguageModel model = LanguageModel.Open(folder, precision);
         var extractor = new FeatureExtractor(model, new ExtractionOptions
@@ -183,13 +202,11 @@ public static class KernelCheck
         });
         var digest = new Digest();
         int rows = 0;
-        using Stream values = valuesFolder is null ? Stream.Null : File.Create(Path.Combine(valuesFolder, Spellings.Of(precision) + ".bin"));
         foreach (FeatureRow row in extractor.Extract(Texts))
         {
             for (int o = 0; o < extractor.Outputs.Count; o++)
             {
                 digest.Add(row.Values(o));
-                values.Write(MemoryMarshal.AsBytes(row.Values(o)));
             }
             rows++;
         }

@@ -33,8 +33,6 @@ public sealed class ArmKernelTests : IClassFixture<ArmKernelTests.Published>
 
         public string Model { get; }
 
-        public string Folder(string name) => Directory.CreateDirectory(_temp.File(name)).FullName;
-
         /// <summary>
         /// The checker under qemu-aarch64 as <paramref name="cpu"/>. .NET's W^X double mapping of JIT code is turned off:
         /// under user-mode emulation it crashes at random (seen here with qemu 7.2); on Arm64 hardware it is not needed.
@@ -47,37 +45,24 @@ public sealed class ArmKernelTests : IClassFixture<ArmKernelTests.Published>
     }
 
     [Fact]
-    public void Dot_product_path_gives_the_scalar_bits_and_the_same_products_as_x86_64()
+    public void Dot_product_path_gives_the_scalar_bits_and_the_same_features_as_x86_64()
     {
         Assert.Equal(Architecture.X64, RuntimeInformation.ProcessArchitecture);
-        string x64Values = _arm.Folder("x64"), armValues = _arm.Folder("arm64");
         var x64 = new StringWriter();
-        Assert.Equal(0, KernelCheck.KernelCheck.Run(_arm.Model, x64Values, x64));
+        Assert.Equal(0, KernelCheck.KernelCheck.Run(_arm.Model, x64));
         // "max": every feature qemu 7.2 emulates, the dot-product extension (FEAT_DotProd) among them.
-        string arm = _arm.Run("max", "--model", _arm.Model, "--values", armValues);
+        string arm = _arm.Run("max", "--model", _arm.Model);
 
         Assert.Contains("Arm64", Lines(arm)[0]);
         Assert.Contains("float paths Scalar, Vector128 (default Vector128); int8 paths Scalar, ArmDot (default ArmDot)", Lines(arm)[0]);
         Assert.DoesNotContain("DIFFERS", arm);
         Assert.Equal("every path gave the scalar path's bits", Lines(arm)[^1]);
-        // The products are exact integer sums (int8) or in-order float32 chains (float32, bfloat16, Φp) on every path, so
-        // the Arm64 build gives x86-64's bits.
-        foreach (string check in new[] { "gemm float32", "gemm bfloat16", "gemm int8", "conditional mean" })
+        // Products are exact integer sums (int8) or in-order float32 chains, and the norms' and softmax's sums run in one
+        // lane order on every vector width, so the Arm64 build gives this machine's bits, down to the bundled model's
+        // features of three texts (every layer's hidden state and Φp) in float32 and in int8.
+        foreach (string check in new[] { "gemm float32", "gemm bfloat16", "gemm int8", "sums", "conditional mean", "attention", "model assay-demo float32", "model assay-demo int8" })
         {
             Assert.Equal(Digest(x64.ToString(), check), Digest(arm, check));
-        }
-        // The features of the whole forward pass agree to float32 rounding only: TensorPrimitives' sums (layer norms,
-        // softmax) add in the order of the machine's widest vector, 128 bits here against 256 or 512 on x86-64.
-        foreach (string weights in new[] { "float32", "int8" })
-        {
-            float[] expected = Floats(Path.Combine(x64Values, weights + ".bin")), actual = Floats(Path.Combine(armValues, weights + ".bin"));
-            Assert.Equal(expected.Length, actual.Length);
-            Assert.True(expected.Length > 1000, $"{weights}: {expected.Length} values");
-            double scale = expected.Max(MathF.Abs);
-            double worst = expected.Zip(actual, (e, a) => Math.Abs(e - (double)a)).Max();
-            // int8 rounds activations to 255 levels, where a last-bit difference can move a value by one step.
-            double bound = weights == "float32" ? 1e-5 : 1e-2;
-            Assert.True(worst <= bound * scale, $"{weights}: Arm64 features differ from x86-64's by {worst:G3} (largest magnitude {scale:G3})");
         }
     }
 
@@ -89,7 +74,7 @@ public sealed class ArmKernelTests : IClassFixture<ArmKernelTests.Published>
         Assert.Contains("float paths Scalar, Vector128 (default Vector128); int8 paths Scalar (default Scalar)", Lines(arm)[0]);
         Assert.Equal("every path gave the scalar path's bits", Lines(arm)[^1]);
         var x64 = new StringWriter();
-        Assert.Equal(0, KernelCheck.KernelCheck.Run(null, null, x64));
+        Assert.Equal(0, KernelCheck.KernelCheck.Run(null, x64));
         Assert.Equal(Digest(x64.ToString(), "gemm int8"), Digest(arm, "gemm int8"));
     }
 
@@ -101,5 +86,4 @@ public sealed class ArmKernelTests : IClassFixture<ArmKernelTests.Published>
         return line[(line.LastIndexOf("digest ", StringComparison.Ordinal) + 7)..];
     }
 
-    private static float[] Floats(string path) => MemoryMarshal.Cast<byte, float>(File.ReadAllBytes(path)).ToArray();
 }

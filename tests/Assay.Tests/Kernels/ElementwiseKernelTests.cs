@@ -14,6 +14,39 @@ public sealed class ElementwiseKernelTests
 
     [Theory]
     [MemberData(nameof(Sizes))]
+    public void Lane_sums_give_one_order_on_every_variant(int n)
+    {
+        // The order written out here in scalar code: element i into lane i mod 16, each lane in order, then the lanes
+        // added in halves (j += j + 8, + 4, + 2, + 1). Every variant must give its bits; the value is checked against the
+        // float64 sum (common practice: float32 summation error ≤ n·ε·Σ|x|).
+        var rng = new DeterministicRandom(1000 + (ulong)n);
+        float[] x = GemmTests.Random(ref rng, n);
+        foreach (bool squares in new[] { false, true })
+        {
+            float[] lanes = new float[16];
+            for (int i = 0; i < n; i++)
+            {
+                lanes[i % 16] += squares ? x[i] * x[i] : x[i];
+            }
+            for (int w = 8; w >= 1; w /= 2)
+            {
+                for (int j = 0; j < w; j++)
+                {
+                    lanes[j] += lanes[j + w];
+                }
+            }
+            double exact = x.Sum(v => squares ? (double)v * v : v), magnitude = x.Sum(v => squares ? (double)v * v : Math.Abs(v));
+            foreach (KernelVariant variant in Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported))
+            {
+                float sum = K.LaneSum(x, squares, variant);
+                Assert.Equal(BitConverter.SingleToInt32Bits(lanes[0]), BitConverter.SingleToInt32Bits(sum));
+                Assert.True(Math.Abs(sum - exact) <= n * 6e-8 * magnitude, $"{variant} n={n}: {sum} against {exact}");
+            }
+        }
+    }
+
+    [Theory]
+    [MemberData(nameof(Sizes))]
     public void LayerNorm_matches_reference(int n)
     {
         var rng = new DeterministicRandom((ulong)n);
