@@ -2,6 +2,7 @@ using System.Diagnostics;
 using System.Numerics.Tensors;
 using System.Runtime.CompilerServices;
 using System.Runtime.Intrinsics;
+using System.Runtime.Intrinsics.X86;
 using Assay.Weights;
 
 namespace Assay.Kernels;
@@ -172,14 +173,7 @@ internal sealed class PackedMatrix
                 for (int k0 = 0; k0 < rows; k0 += Block)
                 {
                     int depth = Math.Min(Block, rows - k0);
-                    for (int j = 0; j < width; j++)
-                    {
-                        float* run = from + ((long)j * rows) + k0;
-                        for (int i = 0; i < depth; i++)
-                        {
-                            to[(i * PanelWidth) + j] = run[i];
-                        }
-                    }
+                    Gather(from, rows, k0, depth, width, to);
                     for (int i = 0; i < depth; i++)
                     {
                         Span<float> row = block.Slice(i * PanelWidth, PanelWidth);
@@ -348,6 +342,53 @@ internal sealed class PackedMatrix
         }
 
         return new PackedMatrix(rows, columns, null, pairs, PadBias(bias, panels));
+    }
+
+    /// <summary>
+    /// to[i·64 + j] = from[j·rows + k0 + i] for i &lt; <paramref name="depth"/>, j &lt; <paramref name="width"/>: a block of a
+    /// panel's source rows turned into rows of k, in 8 × 8 tiles transposed in registers where AVX is there (pure data
+    /// movement, so the same values either way), the ragged rest one value at a time.
+    /// </summary>
+    private static unsafe void Gather(float* from, int rows, int k0, int depth, int width, float* to)
+    {
+        int tiledJ = 0, tiledI = 0;
+        if (Avx.IsSupported)
+        {
+            tiledJ = width / 8 * 8;
+            tiledI = depth / 8 * 8;
+            for (int j0 = 0; j0 < tiledJ; j0 += 8)
+            {
+                for (int i0 = 0; i0 < tiledI; i0 += 8)
+                {
+                    float* src = from + ((long)j0 * rows) + k0 + i0;
+                    Vector256<float> r0 = Avx.LoadVector256(src), r1 = Avx.LoadVector256(src + rows);
+                    Vector256<float> r2 = Avx.LoadVector256(src + (2L * rows)), r3 = Avx.LoadVector256(src + (3L * rows));
+                    Vector256<float> r4 = Avx.LoadVector256(src + (4L * rows)), r5 = Avx.LoadVector256(src + (5L * rows));
+                    Vector256<float> r6 = Avx.LoadVector256(src + (6L * rows)), r7 = Avx.LoadVector256(src + (7L * rows));
+                    Vector256<float> t0 = Avx.UnpackLow(r0, r1), t1 = Avx.UnpackHigh(r0, r1), t2 = Avx.UnpackLow(r2, r3), t3 = Avx.UnpackHigh(r2, r3);
+                    Vector256<float> t4 = Avx.UnpackLow(r4, r5), t5 = Avx.UnpackHigh(r4, r5), t6 = Avx.UnpackLow(r6, r7), t7 = Avx.UnpackHigh(r6, r7);
+                    Vector256<float> s0 = Avx.Shuffle(t0, t2, 0x44), s1 = Avx.Shuffle(t0, t2, 0xEE), s2 = Avx.Shuffle(t1, t3, 0x44), s3 = Avx.Shuffle(t1, t3, 0xEE);
+                    Vector256<float> s4 = Avx.Shuffle(t4, t6, 0x44), s5 = Avx.Shuffle(t4, t6, 0xEE), s6 = Avx.Shuffle(t5, t7, 0x44), s7 = Avx.Shuffle(t5, t7, 0xEE);
+                    float* dst = to + (i0 * PanelWidth) + j0;
+                    Avx.Store(dst, Avx.Permute2x128(s0, s4, 0x20));
+                    Avx.Store(dst + PanelWidth, Avx.Permute2x128(s1, s5, 0x20));
+                    Avx.Store(dst + (2 * PanelWidth), Avx.Permute2x128(s2, s6, 0x20));
+                    Avx.Store(dst + (3 * PanelWidth), Avx.Permute2x128(s3, s7, 0x20));
+                    Avx.Store(dst + (4 * PanelWidth), Avx.Permute2x128(s0, s4, 0x31));
+                    Avx.Store(dst + (5 * PanelWidth), Avx.Permute2x128(s1, s5, 0x31));
+                    Avx.Store(dst + (6 * PanelWidth), Avx.Permute2x128(s2, s6, 0x31));
+                    Avx.Store(dst + (7 * PanelWidth), Avx.Permute2x128(s3, s7, 0x31));
+                }
+            }
+        }
+        for (int j = 0; j < width; j++)
+        {
+            float* run = from + ((long)j * rows) + k0;
+            for (int i = j < tiledJ ? tiledI : 0; i < depth; i++)
+            {
+                to[(i * PanelWidth) + j] = run[i];
+            }
+        }
     }
 
     /// <summary>

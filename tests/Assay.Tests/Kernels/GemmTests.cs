@@ -233,12 +233,17 @@ public sealed class GemmTests
         }
     }
 
-    /// <summary>An [out, in] matrix packed in int8 holds the same bytes, scales, sums and bias as its transpose packed row-major.</summary>
+    /// <summary>
+    /// An [out, in] matrix packed (a panel of rows at a time, gathered in 8 × 8 tiles where AVX is there) holds the same
+    /// values as its transpose packed row-major: float32 panels, bfloat16 pairs, and int8 bytes, scales, sums and bias.
+    /// </summary>
     [Theory]
     [InlineData(9, 70)]
     [InlineData(13, 130)]
     [InlineData(4, 1)]
-    public void Int8_transposed_pack_equals_the_row_major_pack_of_the_transpose(int k, int n)
+    [InlineData(40, 64)]
+    [InlineData(33, 200)]
+    public void Transposed_pack_equals_the_row_major_pack_of_the_transpose(int k, int n)
     {
         var rng = new DeterministicRandom((ulong)(k * n));
         float[] bt = Random(ref rng, n * k);
@@ -257,6 +262,13 @@ public sealed class GemmTests
         Assert.Equal(r0.Scales, t.Scales);
         Assert.Equal(r0.ColumnSums, t.ColumnSums);
         Assert.Equal(r0.Bias, t.Bias);
+        foreach (WeightPrecision precision in new[] { WeightPrecision.Binary32, WeightPrecision.BFloat16 })
+        {
+            PackedMatrix tf = PackedMatrix.FromTransposed(bt, k, n, bias, precision), rf = PackedMatrix.FromRowMajor(b, k, n, bias, precision);
+            Assert.Equal(rf.Data, tf.Data);
+            Assert.Equal(rf.Pairs, tf.Pairs);
+            Assert.Equal(rf.Bias, tf.Bias);
+        }
     }
 
     /// <summary>The sizes of <see cref="Matches_reference_on_small_and_ragged_sizes"/>: M, N in 0/1 … 257, K in 1 … 255.</summary>
