@@ -271,6 +271,37 @@ public sealed class GemmTests
         }
     }
 
+    [Fact]
+    public void Int8_transposed_pack_rounds_ties_to_even_as_the_row_major_pack()
+    {
+        // Columns whose largest magnitude is 127 have scale 1, so x · (1 / s) is x itself and the ties below stay ties:
+        // round half to even (common practice) gives 2, −4, 0, −0, 2, … in both packs.
+        int k = 11, n = 70;
+        float[] ties = [127f, 2.5f, -3.5f, 0.5f, -0.5f, 1.5f, -126.5f, 126.5f, 4.5f, -2.5f, 0f];
+        float[] bt = new float[n * k];
+        for (int c = 0; c < n; c++)
+        {
+            for (int r = 0; r < k; r++)
+            {
+                bt[(c * k) + r] = ties[(r + c) % k] * (c % 2 == 0 ? 1 : -1);
+            }
+        }
+        float[] b = new float[k * n];
+        for (int r = 0; r < k; r++)
+        {
+            for (int c = 0; c < n; c++)
+            {
+                b[(r * n) + c] = bt[(c * k) + r];
+            }
+        }
+        PackedMatrix t = PackedMatrix.FromTransposed(bt, k, n, precision: WeightPrecision.Integer8);
+        PackedMatrix r0 = PackedMatrix.FromRowMajor(b, k, n, precision: WeightPrecision.Integer8);
+        Assert.Equal(r0.Quads, t.Quads);
+        Assert.Equal(r0.ColumnSums, t.ColumnSums);
+        Assert.Contains((sbyte)2, t.Quads!);
+        Assert.DoesNotContain((sbyte)3, t.Quads!);   // 2.5 → 2, never 3; −3.5 → −4
+    }
+
     /// <summary>The sizes of <see cref="Matches_reference_on_small_and_ragged_sizes"/>: M, N in 0/1 … 257, K in 1 … 255.</summary>
     private static IEnumerable<(int M, int N, int K)> Grid() =>
         from m in Ms from n in Ns from k in Ks select (m, n, k);
