@@ -44,7 +44,7 @@ public static class KernelCheck
         KernelVariant[] variants = [.. Enum.GetValues<KernelVariant>().Where(KernelSelector.IsSupported)];
         Int8Kernel[] integer = [.. Enum.GetValues<Int8Kernel>().Where(KernelSelector.IsSupported)];
         output.WriteLine(string.Create(CultureInfo.InvariantCulture,
-            $"assay-kernel-check: {RuntimeInformation.ProcessArchitecture}, CPU {Cpu}; float paths {string.Join(", ", variants)} (default {KernelSelector.Current}); int8 paths {string.Join(", ", integer)} (default {KernelSelector.CurrentInt8})"));
+            $"assay-kernel-check: {RuntimeInformation.ProcessArchitecture}, CPU {KernelSelector.CpuModel}; float paths {string.Join(", ", variants)} (default {KernelSelector.Current}); int8 paths {string.Join(", ", integer)} (default {KernelSelector.CurrentInt8})"));
         int failures = 0;
         foreach (WeightPrecision precision in new[] { WeightPrecision.Binary32, WeightPrecision.BFloat16, WeightPrecision.Integer8 })
         {
@@ -63,10 +63,6 @@ public static class KernelCheck
         output.WriteLine(failures == 0 ? "every path gave the scalar path's bits" : $"{failures} checks differ from the scalar path");
         return failures == 0 ? 0 : 1;
     }
-
-    private static string Cpu => File.Exists("/proc/cpuinfo")
-        ? File.ReadLines("/proc/cpuinfo").FirstOrDefault(l => l.StartsWith("model name", StringComparison.Ordinal))?.Split(':', 2)[1].Trim() ?? "unknown"
-        : "unknown";
 
     private static int Gemm(WeightPrecision precision, KernelVariant[] variants, Int8Kernel[] integer, TextWriter output)
     {

@@ -14,6 +14,11 @@ namespace Assay.Kernels;
 /// </summary>
 public static class KernelSelector
 {
+    /// <summary>The CPU model as /proc/cpuinfo names it ("unknown" where it does not; under emulation, the host's), for benchmark and check headers.</summary>
+    internal static string CpuModel => File.Exists("/proc/cpuinfo")
+        ? File.ReadLines("/proc/cpuinfo").FirstOrDefault(l => l.StartsWith("model name", StringComparison.Ordinal))?.Split(':', 2)[1].Trim() ?? "unknown"
+        : "unknown";
+
     /// <summary>The name of the environment variable that forces a variant.</summary>
     public const string EnvironmentVariable = "ASSAY_KERNELS";
 

@@ -136,12 +136,7 @@ internal sealed class PackedMatrix
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
     internal static unsafe PackedMatrix FromTransposedRows(int rows, int columns, SourceRows read, ReadOnlySpan<float> bias, WeightPrecision precision)
     {
-        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(rows);
-        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(columns);
-        if (!bias.IsEmpty && bias.Length != columns)
-        {
-            throw new ArgumentException($"bias holds {bias.Length} values; expected {columns}", nameof(bias));
-        }
+        CheckShape(rows, columns, bias);
         const int Block = 16;
         int panels = (columns + PanelWidth - 1) / PanelWidth, groups = (rows + QuadDepth - 1) / QuadDepth;
         float[]? data = precision == WeightPrecision.Binary32 ? GC.AllocateArray<float>(checked(panels * rows * PanelWidth), pinned: true) : null;
@@ -312,12 +307,17 @@ internal sealed class PackedMatrix
 
     private static void Check(ReadOnlySpan<float> source, int rows, int columns, ReadOnlySpan<float> bias)
     {
-        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(rows);
-        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(columns);
+        CheckShape(rows, columns, bias);
         if (source.Length != (long)rows * columns)
         {
             throw new ArgumentException($"source holds {source.Length} values; {rows} × {columns} needs {(long)rows * columns}", nameof(source));
         }
+    }
+
+    private static void CheckShape(int rows, int columns, ReadOnlySpan<float> bias)
+    {
+        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(rows);
+        ArgumentOutOfRangeException.ThrowIfNegativeOrZero(columns);
         if (!bias.IsEmpty && bias.Length != columns)
         {
             throw new ArgumentException($"bias holds {bias.Length} values; expected {columns}", nameof(bias));

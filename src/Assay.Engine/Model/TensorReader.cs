@@ -9,7 +9,8 @@ namespace Assay.Model;
 /// Converts tensors one at a time. Matrices stored [out, in] (the token embedding, the head, the rotary families'
 /// layers, stacked or not) are read one panel of 64 rows at a time into a small scratch buffer and packed from there;
 /// GPT-2's [in, out] matrices go whole through a scratch buffer sized for the largest. Loading leaves no float32
-/// copies behind; each tensor's mapped file pages are released once it is packed, and every value is checked finite.
+/// copies behind; mapped file pages are released as they are converted (a panel's rows at a time for [out, in]
+/// matrices, a whole tensor otherwise), and every value is checked finite.
 /// A cancelled <paramref name="cancellationToken"/> stops the load before the next tensor.
 /// </summary>
 internal sealed class TensorReader(SafetensorsCheckpoint checkpoint, string prefix, CancellationToken cancellationToken)
@@ -86,7 +87,7 @@ internal sealed class TensorReader(SafetensorsCheckpoint checkpoint, string pref
         }, bias, precision);
         foreach (TensorInfo t in parts)
         {
-            checkpoint.ReleasePages(t);
+            checkpoint.ReleasePages(t);   // the pages that straddled two panels' rows
         }
         return packed;
     }

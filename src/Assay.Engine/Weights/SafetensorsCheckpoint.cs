@@ -119,7 +119,6 @@ public sealed class SafetensorsCheckpoint : IDisposable
         return null;
     }
 
-    /// <summary>Lets the tensor's mapped pages go once it has been converted (see <see cref="SafetensorsFile"/>).</summary>
     /// <summary>Elements <paramref name="first"/> … of a tensor of this checkpoint, converted to float32.</summary>
     internal void ReadFloat32(TensorInfo tensor, long first, Span<float> destination) =>
         _byName[tensor.Name].File.ReadFloat32(tensor, first, destination);
@@ -127,6 +126,7 @@ public sealed class SafetensorsCheckpoint : IDisposable
     /// <summary>Releases the mapped pages of elements <paramref name="first"/> … <paramref name="first"/> + <paramref name="count"/> − 1 of a tensor (see <see cref="SafetensorsFile.ReleasePages(TensorInfo, long, long)"/>).</summary>
     internal void ReleasePages(TensorInfo tensor, long first, long count) => _byName[tensor.Name].File.ReleasePages(tensor, first, count);
 
+    /// <summary>Lets the tensor's mapped pages go once it has been converted (see <see cref="SafetensorsFile"/>).</summary>
     internal void ReleasePages(TensorInfo tensor)
     {
         if (_byName.TryGetValue(tensor.Name, out (TensorInfo Info, SafetensorsFile File) entry))
