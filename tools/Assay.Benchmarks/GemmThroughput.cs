@@ -29,7 +29,7 @@ internal static class GemmThroughput
         ];
         double peak = FmaPeak.Measure(threads);
         var parallel = new ParallelOptions { MaxDegreeOfParallelism = threads };
-        o.WriteLine(string.Create(inv, $"FMA peak (register-only Vector512 loop, {threads} threads): {peak:F1} GFLOP/s; GEMM medians of {repeats}."));
+        o.WriteLine(string.Create(inv, $"FMA peak (register-only {FmaPeak.Width} loop, {threads} threads): {peak:F1} GFLOP/s; GEMM medians of {repeats}."));
         o.WriteLine();
         o.WriteLine(Machine.Describe() + " (the defaults; each row names the path it ran).");
         o.WriteLine();

@@ -150,7 +150,7 @@ try
     Console.WriteLine(string.Create(inv, $"| engine, int8 projections | {WorstCosine(engine32.Hidden, engine8.Hidden, spec.Width):F6}; {MaxAbs(engine32.Hidden, engine8.Hidden):G3} | {WorstCosine(engineLogits, engine8.Logits, spec.Vocabulary):F6}; {MaxAbs(engineLogits, engine8.Logits):G3} |"));
     Console.WriteLine(string.Create(inv, $"| libtorch, bfloat16 | | {torchDrift:F6} |"));
     Console.WriteLine();
-    Console.WriteLine(string.Create(inv, $"FMA peak (register-only Vector512 loop, {threads} threads): {peak:F1} GFLOP/s. libtorch float32 matmul 1024 × {spec.Width} · {spec.Width} × {spec.InnerWidth}: {torchGemm:F1} GFLOP/s."));
+    Console.WriteLine(string.Create(inv, $"FMA peak (register-only {FmaPeak.Width} loop, {threads} threads): {peak:F1} GFLOP/s. libtorch float32 matmul 1024 × {spec.Width} · {spec.Width} × {spec.InnerWidth}: {torchGemm:F1} GFLOP/s."));
     Console.WriteLine(string.Create(inv, $"Engine vs libtorch float32 last-position logits: max abs difference {maxDiff:G3}."));
     return 0;
 }
