@@ -76,7 +76,7 @@ internal static unsafe partial class CpuKernels
     private static int MicroRows(KernelVariant variant) => variant switch
     {
         KernelVariant.Vector512 => 6,
-        KernelVariant.Vector256 => 3,
+        KernelVariant.Vector256 => 6,
         _ => 4,   // Vector128: 4 rows × a quarter panel; scalar: 4 rows × 64
     };
 
@@ -182,8 +182,10 @@ internal static unsafe partial class CpuKernels
                 MicroVector512<TPanel>(rows, bp, k, bias, c, ldc, accumulate);
                 break;
             case KernelVariant.Vector256:
-                MicroVector256<TPanel>(rows, bp, 0, k, bias, c, ldc, accumulate);
-                MicroVector256<TPanel>(rows, bp, 1, k, bias == null ? null : bias + 32, c + 32, ldc, accumulate);
+                for (int quarter = 0; quarter < 4; quarter++)
+                {
+                    MicroVector256<TPanel>(rows, bp, quarter, k, bias == null ? null : bias + (16 * quarter), c + (16 * quarter), ldc, accumulate);
+                }
                 break;
             case KernelVariant.Vector128:
                 for (int quarter = 0; quarter < 4; quarter++)
@@ -356,46 +358,51 @@ internal static unsafe partial class CpuKernels
         x30.Store(c3); x31.Store(c3 + 4); x32.Store(c3 + 8); x33.Store(c3 + 12);
     }
 
-    /// <summary>A 3 × 32 tile (half <paramref name="h"/> of a panel) in 256-bit vectors (12 accumulators).</summary>
+    /// <summary>
+    /// A 6 × 16 tile (quarter <paramref name="u"/> of a panel) in 256-bit vectors: 12 accumulators, 2 panel loads and
+    /// 6 broadcasts per k, 15 registers in all, so it fits the 16 that AVX2 has without AVX-512 (a 3 × 32 tile needs 17
+    /// and spilled there, at about 40 % of the FMA peak).
+    /// </summary>
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
-    private static void MicroVector256<TPanel>(float** rows, byte* bp, int h, int k, float* bias, float* c, int ldc, bool accumulate)
+    private static void MicroVector256<TPanel>(float** rows, byte* bp, int u, int k, float* bias, float* c, int ldc, bool accumulate)
         where TPanel : struct, IPanelRow
     {
-        float* a0 = rows[0], a1 = rows[1], a2 = rows[2];
-        float* c0 = c, c1 = c + ldc, c2 = c + (2L * ldc);
+        // Columns 16u … 16u + 15 are loads 2(u & 1) and 2(u & 1) + 1 of half u >> 1.
+        int h = u >> 1, q = 2 * (u & 1);
+        float* a0 = rows[0], a1 = rows[1], a2 = rows[2], a3 = rows[3], a4 = rows[4], a5 = rows[5];
+        float* c0 = c, c1 = c + ldc, c2 = c + (2L * ldc), c3 = c + (3L * ldc), c4 = c + (4L * ldc), c5 = c + (5L * ldc);
         Vector256<float> z = Vector256<float>.Zero;
         Vector256<float> x00 = accumulate ? Vector256.Load(c0) : z, x01 = accumulate ? Vector256.Load(c0 + 8) : z;
-        Vector256<float> x02 = accumulate ? Vector256.Load(c0 + 16) : z, x03 = accumulate ? Vector256.Load(c0 + 24) : z;
         Vector256<float> x10 = accumulate ? Vector256.Load(c1) : z, x11 = accumulate ? Vector256.Load(c1 + 8) : z;
-        Vector256<float> x12 = accumulate ? Vector256.Load(c1 + 16) : z, x13 = accumulate ? Vector256.Load(c1 + 24) : z;
         Vector256<float> x20 = accumulate ? Vector256.Load(c2) : z, x21 = accumulate ? Vector256.Load(c2 + 8) : z;
-        Vector256<float> x22 = accumulate ? Vector256.Load(c2 + 16) : z, x23 = accumulate ? Vector256.Load(c2 + 24) : z;
+        Vector256<float> x30 = accumulate ? Vector256.Load(c3) : z, x31 = accumulate ? Vector256.Load(c3 + 8) : z;
+        Vector256<float> x40 = accumulate ? Vector256.Load(c4) : z, x41 = accumulate ? Vector256.Load(c4 + 8) : z;
+        Vector256<float> x50 = accumulate ? Vector256.Load(c5) : z, x51 = accumulate ? Vector256.Load(c5 + 8) : z;
         for (int p = 0; p < k; p++)
         {
             byte* bRow = bp + ((long)p * TPanel.RowBytes);
-            Vector256<float> b0 = TPanel.Load256(bRow, h, 0), b1 = TPanel.Load256(bRow, h, 1);
-            Vector256<float> b2 = TPanel.Load256(bRow, h, 2), b3 = TPanel.Load256(bRow, h, 3);
+            Vector256<float> b0 = TPanel.Load256(bRow, h, q), b1 = TPanel.Load256(bRow, h, q + 1);
             Vector256<float> v = Vector256.Create(a0[p]);
             x00 = Vector256.FusedMultiplyAdd(v, b0, x00); x01 = Vector256.FusedMultiplyAdd(v, b1, x01);
-            x02 = Vector256.FusedMultiplyAdd(v, b2, x02); x03 = Vector256.FusedMultiplyAdd(v, b3, x03);
             v = Vector256.Create(a1[p]);
             x10 = Vector256.FusedMultiplyAdd(v, b0, x10); x11 = Vector256.FusedMultiplyAdd(v, b1, x11);
-            x12 = Vector256.FusedMultiplyAdd(v, b2, x12); x13 = Vector256.FusedMultiplyAdd(v, b3, x13);
             v = Vector256.Create(a2[p]);
             x20 = Vector256.FusedMultiplyAdd(v, b0, x20); x21 = Vector256.FusedMultiplyAdd(v, b1, x21);
-            x22 = Vector256.FusedMultiplyAdd(v, b2, x22); x23 = Vector256.FusedMultiplyAdd(v, b3, x23);
+            v = Vector256.Create(a3[p]);
+            x30 = Vector256.FusedMultiplyAdd(v, b0, x30); x31 = Vector256.FusedMultiplyAdd(v, b1, x31);
+            v = Vector256.Create(a4[p]);
+            x40 = Vector256.FusedMultiplyAdd(v, b0, x40); x41 = Vector256.FusedMultiplyAdd(v, b1, x41);
+            v = Vector256.Create(a5[p]);
+            x50 = Vector256.FusedMultiplyAdd(v, b0, x50); x51 = Vector256.FusedMultiplyAdd(v, b1, x51);
         }
         if (bias != null)
         {
             Vector256<float> y0 = Vector256.Load(bias), y1 = Vector256.Load(bias + 8);
-            Vector256<float> y2 = Vector256.Load(bias + 16), y3 = Vector256.Load(bias + 24);
-            x00 += y0; x01 += y1; x02 += y2; x03 += y3;
-            x10 += y0; x11 += y1; x12 += y2; x13 += y3;
-            x20 += y0; x21 += y1; x22 += y2; x23 += y3;
+            x00 += y0; x01 += y1; x10 += y0; x11 += y1; x20 += y0; x21 += y1;
+            x30 += y0; x31 += y1; x40 += y0; x41 += y1; x50 += y0; x51 += y1;
         }
-        x00.Store(c0); x01.Store(c0 + 8); x02.Store(c0 + 16); x03.Store(c0 + 24);
-        x10.Store(c1); x11.Store(c1 + 8); x12.Store(c1 + 16); x13.Store(c1 + 24);
-        x20.Store(c2); x21.Store(c2 + 8); x22.Store(c2 + 16); x23.Store(c2 + 24);
+        x00.Store(c0); x01.Store(c0 + 8); x10.Store(c1); x11.Store(c1 + 8); x20.Store(c2); x21.Store(c2 + 8);
+        x30.Store(c3); x31.Store(c3 + 8); x40.Store(c4); x41.Store(c4 + 8); x50.Store(c5); x51.Store(c5 + 8);
     }
 
     /// <summary>A 6 × 64 tile in 512-bit vectors (24 accumulators, 4 panel loads and 6 broadcasts per k).</summary>
