@@ -11,12 +11,13 @@ namespace Assay.TorchBenchmark;
 /// Tokens per second by row length, in one process: the engine (float32 and int8) and libtorch (float32 and
 /// bfloat16) on the same random weights and, at each length, the same batch of about <c>tokens</c> tokens
 /// (⌈tokens / length⌉ rows of equal length; one row when the length is longer). Each system is warmed up once at the
-/// shortest length, then timed <c>repeats</c> times per length; medians. Prints a Markdown table with the ratios.
+/// shortest length, then timed <c>repeats</c> times per length; medians. Prints a Markdown table with the ratios;
+/// libtorch's bfloat16 columns say "not run" when <c>torchBFloat16</c> is false.
 /// </summary>
 internal static class LengthSweep
 {
     public static void Run(CheckpointSpec spec, string folder, int[] lengths, int tokens, int repeats, int threads,
-        Func<ScalarType, ITorchModel> torchModel, TextWriter o)
+        bool torchBFloat16, Func<ScalarType, ITorchModel> torchModel, TextWriter o)
     {
         CultureInfo inv = CultureInfo.InvariantCulture;
         var rng = new DeterministicRandom(11);
@@ -51,7 +52,7 @@ internal static class LengthSweep
         double[] engine32 = Engine(WeightPrecision.Binary32);
         double[] engine8 = Engine(WeightPrecision.Integer8);
         double[] torch32 = Torch(ScalarType.Float32);
-        double[] torch16 = Torch(ScalarType.BFloat16);
+        double[]? torch16 = torchBFloat16 ? Torch(ScalarType.BFloat16) : null;
 
         o.WriteLine(string.Create(inv, $"Tokens/s by row length: about {tokens:N0} tokens a batch; {threads} threads; one warm-up per system, then medians of {repeats}."));
         o.WriteLine();
@@ -61,7 +62,7 @@ internal static class LengthSweep
         {
             double n = (double)batches[i].Rows * batches[i].Length;
             o.WriteLine(string.Create(inv,
-                $"| {batches[i].Length:N0} | {batches[i].Rows} | {n / engine32[i]:F0} | {n / engine8[i]:F0} | {n / torch32[i]:F0} | {n / torch16[i]:F0} | {torch32[i] / engine32[i]:F2} | {torch16[i] / engine8[i]:F2} |"));
+                $"| {batches[i].Length:N0} | {batches[i].Rows} | {n / engine32[i]:F0} | {n / engine8[i]:F0} | {n / torch32[i]:F0} | {(torch16 is null ? "not run" : (n / torch16[i]).ToString("F0", inv))} | {torch32[i] / engine32[i]:F2} | {(torch16 is null ? "–" : (torch16[i] / engine8[i]).ToString("F2", inv))} |"));
         }
     }
 

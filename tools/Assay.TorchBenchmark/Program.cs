@@ -7,22 +7,30 @@ using TorchSharp;
 using static TorchSharp.torch;
 using Assay.Weights;
 
-// assay-torch-bench [--shape gpt2-small|llama-1b] [--batch B] [--length T] [--repeats R] [--threads N]
-// assay-torch-bench [--shape gpt2-small|llama-1b] --lengths T1,T2,… [--tokens N] [--repeats R] [--threads N]
+// assay-torch-bench [--shape gpt2-small|llama-1b] [--batch B] [--length T] [--repeats R] [--threads N] [--torch-bfloat16 on|off]
+// assay-torch-bench [--shape gpt2-small|llama-1b] --lengths T1,T2,… [--tokens N] [--repeats R] [--threads N] [--torch-bfloat16 on|off]
 // One run, one process: the engine's forward pass and libtorch's (float32 and bfloat16) on the same random weights
 // (Assay.Fixtures' deterministic checkpoint: GPT-2 small in float32, or a Llama-style 1B shape — hidden 2048, 16
 // layers, 32 heads on 8 key/value heads, intermediate 8192, vocabulary 128,256, tied — stored in bfloat16, which
 // widens exactly) and the same token batches, head at the last position only; the FMA peak of this CPU measured in
 // the same run; medians of R timed repeats after one warm-up each. Prints the CPU, the kernel paths and a Markdown table.
 // With --lengths: tokens/s of each system at each row length instead (LengthSweep), about N tokens a batch (default 2048).
+// --torch-bfloat16 off leaves libtorch's bfloat16 pass out (its columns say so): on a CPU without bfloat16 dot-product
+// instructions it ran at 6 tokens/s at GPT-2 small, which would make a sweep take hours.
 int batch = 8, length = 128, repeats = 5, threads = Environment.ProcessorCount, sweepTokens = 2048;
 string shape = "gpt2-small";
+bool torchBFloat16 = true;
 int[]? lengths = null;
 for (int i = 0; i + 1 < args.Length; i += 2)
 {
     if (args[i] == "--shape")
     {
         shape = args[i + 1];
+        continue;
+    }
+    if (args[i] == "--torch-bfloat16" && args[i + 1] is "on" or "off")
+    {
+        torchBFloat16 = args[i + 1] == "on";
         continue;
     }
     if (args[i] == "--lengths")
@@ -45,7 +53,7 @@ for (int i = 0; i + 1 < args.Length; i += 2)
 }
 if (args.Length % 2 != 0 || shape is not ("gpt2-small" or "llama-1b"))
 {
-    Console.Error.WriteLine("usage: assay-torch-bench [--shape gpt2-small|llama-1b] [--batch B] [--length T] [--repeats R] [--threads N]\n       assay-torch-bench [--shape gpt2-small|llama-1b] --lengths T1,T2,… [--tokens N] [--repeats R] [--threads N]");
+    Console.Error.WriteLine("usage: assay-torch-bench [--shape gpt2-small|llama-1b] [--batch B] [--length T] [--repeats R] [--threads N] [--torch-bfloat16 on|off]\n       assay-torch-bench [--shape gpt2-small|llama-1b] --lengths T1,T2,… [--tokens N] [--repeats R] [--threads N] [--torch-bfloat16 on|off]");
     return 2;
 }
 torch.set_num_threads(threads);
@@ -54,9 +62,13 @@ bool llama = shape == "llama-1b";
 CheckpointSpec spec = llama
     ? CheckpointSpec.Llama1B with { Context = Math.Max(2048, lengths?.Max() ?? length), Tokenizer = TokenizerFiles.None }
     : CheckpointSpec.Gpt2Small with { DType = "F32" };
-string cpu = File.Exists("/proc/cpuinfo")
-    ? File.ReadLines("/proc/cpuinfo").FirstOrDefault(l => l.StartsWith("model name", StringComparison.Ordinal))?.Split(':', 2)[1].Trim() ?? "unknown"
-    : "unknown";
+string CpuInfo(string field) => File.Exists("/proc/cpuinfo")
+    ? File.ReadLines("/proc/cpuinfo").FirstOrDefault(l => l.StartsWith(field, StringComparison.Ordinal))?.Split(':', 2)[1].Trim() ?? ""
+    : "";
+string[] flags = CpuInfo("flags").Split(' ');
+string bf16Instructions = string.Join(", ", flags.Where(f => f is "avx512_bf16" or "amx_bf16"));
+string cpu = (CpuInfo("model name") is { Length: > 0 } name ? name : "unknown") + ", " + Environment.ProcessorCount.ToString(inv)
+    + " cores; bfloat16 dot-product instructions (/proc/cpuinfo): " + (bf16Instructions.Length > 0 ? bf16Instructions : "none");
 string folder = Path.Combine(Path.GetTempPath(), "assay-torch-bench-" + Environment.ProcessId.ToString(inv));
 try
 {
@@ -64,8 +76,8 @@ try
     SyntheticCheckpoint.Write(spec, folder);
     if (lengths != null)
     {
-        Console.WriteLine(string.Create(inv, $"CPU: {cpu}, {Environment.ProcessorCount} cores; engine kernels {LanguageModel.Kernels}, int8 {LanguageModel.Int8Kernels}; shape {shape}."));
-        LengthSweep.Run(spec, folder, lengths, sweepTokens, repeats, threads, Torch, Console.Out);
+        Console.WriteLine(string.Create(inv, $"CPU: {cpu}; engine kernels {LanguageModel.Kernels}, int8 {LanguageModel.Int8Kernels}; shape {shape}."));
+        LengthSweep.Run(spec, folder, lengths, sweepTokens, repeats, threads, torchBFloat16, Torch, Console.Out);
         return 0;
     }
     var rng = new DeterministicRandom(7);
@@ -111,11 +123,16 @@ try
         torch32 = FmaPeak.Median(repeats, () => torchLogits = t32.Forward(flat, batch, length));
         maxDiff = engineLogits.Zip(torchLogits, (a, b) => Math.Abs(a - b)).Max();
     }
-    using (ITorchModel t16 = Torch(ScalarType.BFloat16))
+    if (torchBFloat16)
     {
+        using ITorchModel t16 = Torch(ScalarType.BFloat16);
         float[] torchLogits16 = [];
         torch16 = FmaPeak.Median(repeats, () => torchLogits16 = t16.Forward(flat, batch, length));
         torchDrift = WorstCosine(engineLogits, torchLogits16, spec.Vocabulary);
+    }
+    else
+    {
+        torch16 = torchDrift = double.NaN;
     }
 
     // Multiply-adds of the pass: per token and layer the projections (q, k, v, output and the MLP's two or three
@@ -124,7 +141,7 @@ try
     double projections = (d * (q + (2 * kvWidth))) + (q * d) + ((llama ? 3 : 2) * d * m);
     double flops = (2.0 * tokens * spec.Layers * (projections + (q * (length + 1)))) + (2.0 * batch * d * spec.Vocabulary);
 
-    Console.WriteLine(string.Create(inv, $"CPU: {cpu}, {Environment.ProcessorCount} cores; engine kernels {LanguageModel.Kernels}, int8 {LanguageModel.Int8Kernels}."));
+    Console.WriteLine(string.Create(inv, $"CPU: {cpu}; engine kernels {LanguageModel.Kernels}, int8 {LanguageModel.Int8Kernels}."));
     Console.WriteLine(llama
         ? string.Create(inv, $"Llama-style 1B shape (16 layers, width 2048, 32 heads on 8 key/value heads, MLP 8192 gated, vocabulary 128,256, tied), {batch} × {length} tokens, head at the last position; {threads} threads; medians of {repeats}.")
         : string.Create(inv, $"GPT-2-small shape (12 layers, width 768, vocabulary 50,257), {batch} × {length} tokens, head at the last position; {threads} threads; medians of {repeats}."));
@@ -137,10 +154,18 @@ try
     Row("engine, bfloat16 weights", engine16.Seconds);
     Row("engine, int8 projections", engine8.Seconds);
     Row("libtorch 2.10, float32", torch32);
-    Row("libtorch 2.10, bfloat16", torch16);
+    if (torchBFloat16)
+    {
+        Row("libtorch 2.10, bfloat16", torch16);
+    }
+    else
+    {
+        Console.WriteLine("| libtorch 2.10, bfloat16 | not run (--torch-bfloat16 off) | | | | |");
+    }
     Console.WriteLine();
-    Console.WriteLine(string.Create(inv, $"Engine over libtorch float32: {torch32 / engineSeconds:F2}×. Engine bfloat16 over libtorch bfloat16: {torch16 / engine16.Seconds:F2}×")
-        + string.Create(inv, $"; engine int8 over libtorch bfloat16: {torch16 / engine8.Seconds:F2}×."));
+    Console.WriteLine(string.Create(inv, $"Engine over libtorch float32: {torch32 / engineSeconds:F2}×.") + (torchBFloat16
+        ? string.Create(inv, $" Engine bfloat16 over libtorch bfloat16: {torch16 / engine16.Seconds:F2}×; engine int8 over libtorch bfloat16: {torch16 / engine8.Seconds:F2}×.")
+        : " libtorch bfloat16 not run."));
     Console.WriteLine();
     Console.WriteLine("Drift against the engine's float32 pass, worst of the batch's last positions (cosine; max abs difference):");
     Console.WriteLine();
@@ -148,7 +173,7 @@ try
     Console.WriteLine("|---|---|---|");
     Console.WriteLine(string.Create(inv, $"| engine, bfloat16 weights | {WorstCosine(engine32.Hidden, engine16.Hidden, spec.Width):F6}; {MaxAbs(engine32.Hidden, engine16.Hidden):G3} | {WorstCosine(engineLogits, engine16.Logits, spec.Vocabulary):F6}; {MaxAbs(engineLogits, engine16.Logits):G3} |"));
     Console.WriteLine(string.Create(inv, $"| engine, int8 projections | {WorstCosine(engine32.Hidden, engine8.Hidden, spec.Width):F6}; {MaxAbs(engine32.Hidden, engine8.Hidden):G3} | {WorstCosine(engineLogits, engine8.Logits, spec.Vocabulary):F6}; {MaxAbs(engineLogits, engine8.Logits):G3} |"));
-    Console.WriteLine(string.Create(inv, $"| libtorch, bfloat16 | | {torchDrift:F6} |"));
+    Console.WriteLine(torchBFloat16 ? string.Create(inv, $"| libtorch, bfloat16 | | {torchDrift:F6} |") : "| libtorch, bfloat16 | | not run |");
     Console.WriteLine();
     Console.WriteLine(string.Create(inv, $"FMA peak (register-only {FmaPeak.Width} loop, {threads} threads): {peak:F1} GFLOP/s. libtorch float32 matmul 1024 × {spec.Width} · {spec.Width} × {spec.InnerWidth}: {torchGemm:F1} GFLOP/s."));
     Console.WriteLine(string.Create(inv, $"Engine vs libtorch float32 last-position logits: max abs difference {maxDiff:G3}."));

@@ -12,12 +12,12 @@ internal static unsafe partial class CpuKernels
     private const int TilesPerTask = 8;
 
     /// <summary>
-    /// Rows of k per pass of a task's tiles over one panel: 256 × 64 columns of B is 64 KiB in float32 (32 in
-    /// bfloat16), which the level-2 cache holds while eight tiles read it, and a tile's six rows of A over the block
-    /// (6 KiB) stay in level 1. At K = 3,072 a whole panel (768 KiB) overflows level 2 and was read again from further
-    /// out for every tile.
+    /// Rows of k per pass of a task's tiles over one panel: 128 × 64 columns of B is 32 KiB in float32 (16 in
+    /// bfloat16), which eight tiles read again from the inner caches, and a tile's six rows of A over the block (3 KiB)
+    /// stay in level 1. At K = 3,072 a whole panel (768 KiB) overflows level 2 and was read again from further out for
+    /// every tile; on AMD family 25 model 1, 128 measured a little faster than 256 at most GPT-2-small shapes.
     /// </summary>
-    private const int DepthBlock = 256;
+    private const int DepthBlock = 128;
 
     /// <summary>Below this many multiply-adds a GEMM runs on the calling thread.</summary>
     private const long ParallelThreshold = 1 << 18;
@@ -206,22 +206,40 @@ internal static unsafe partial class CpuKernels
                 MicroVector512<TPanel>(rows, bp, k, bias, c, ldc, accumulate);
                 break;
             case KernelVariant.Vector256:
-                for (int quarter = 0; quarter < 4; quarter++)
-                {
-                    MicroVector256<TPanel>(rows, bp, quarter, k, bias == null ? null : bias + (16 * quarter), c + (16 * quarter), ldc, accumulate);
-                }
+                MicroVector256<TPanel, Quarter0>(rows, bp, k, bias, c, ldc, accumulate);
+                MicroVector256<TPanel, Quarter1>(rows, bp, k, bias == null ? null : bias + 16, c + 16, ldc, accumulate);
+                MicroVector256<TPanel, Quarter2>(rows, bp, k, bias == null ? null : bias + 32, c + 32, ldc, accumulate);
+                MicroVector256<TPanel, Quarter3>(rows, bp, k, bias == null ? null : bias + 48, c + 48, ldc, accumulate);
                 break;
             case KernelVariant.Vector128:
-                for (int quarter = 0; quarter < 4; quarter++)
-                {
-                    MicroVector128<TPanel>(rows, bp, quarter, k, bias == null ? null : bias + (16 * quarter), c + (16 * quarter), ldc, accumulate);
-                }
+                MicroVector128<TPanel, Quarter0>(rows, bp, k, bias, c, ldc, accumulate);
+                MicroVector128<TPanel, Quarter1>(rows, bp, k, bias == null ? null : bias + 16, c + 16, ldc, accumulate);
+                MicroVector128<TPanel, Quarter2>(rows, bp, k, bias == null ? null : bias + 32, c + 32, ldc, accumulate);
+                MicroVector128<TPanel, Quarter3>(rows, bp, k, bias == null ? null : bias + 48, c + 48, ldc, accumulate);
                 break;
             default:
                 MicroScalar<TPanel>(rows, bp, k, bias, c, ldc, accumulate);
                 break;
         }
     }
+
+    /// <summary>
+    /// Which quarter of a panel (16 columns) a Vector256 or Vector128 tile covers, as a type argument: each quarter is
+    /// then its own compiled kernel whose loads have constant offsets and no branch on the quarter (with the quarter as
+    /// a value, the JIT recomputed the offsets in every iteration and kept one on the stack).
+    /// </summary>
+    private interface IQuarter
+    {
+        static abstract int U { get; }
+    }
+
+    private readonly struct Quarter0 : IQuarter { public static int U => 0; }
+
+    private readonly struct Quarter1 : IQuarter { public static int U => 1; }
+
+    private readonly struct Quarter2 : IQuarter { public static int U => 2; }
+
+    private readonly struct Quarter3 : IQuarter { public static int U => 3; }
 
     /// <summary>Reads one packed panel row (64 columns of B at one k) as float32, whatever its storage.</summary>
     private interface IPanelRow
@@ -333,11 +351,13 @@ internal static unsafe partial class CpuKernels
         }
     }
 
-    /// <summary>A 4 × 16 tile (quarter <paramref name="u"/> of a panel) in 128-bit vectors (16 accumulators).</summary>
+    /// <summary>A 4 × 16 tile (quarter <typeparamref name="TQuarter"/> of a panel) in 128-bit vectors (16 accumulators).</summary>
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
-    private static void MicroVector128<TPanel>(float** rows, byte* bp, int u, int k, float* bias, float* c, int ldc, bool accumulate)
+    private static void MicroVector128<TPanel, TQuarter>(float** rows, byte* bp, int k, float* bias, float* c, int ldc, bool accumulate)
         where TPanel : struct, IPanelRow
+        where TQuarter : struct, IQuarter
     {
+        int u = TQuarter.U;
         float* a0 = rows[0], a1 = rows[1], a2 = rows[2], a3 = rows[3];
         float* c0 = c, c1 = c + ldc, c2 = c + (2L * ldc), c3 = c + (3L * ldc);
         Vector128<float> z = Vector128<float>.Zero;
@@ -349,9 +369,9 @@ internal static unsafe partial class CpuKernels
         Vector128<float> x22 = accumulate ? Vector128.Load(c2 + 8) : z, x23 = accumulate ? Vector128.Load(c2 + 12) : z;
         Vector128<float> x30 = accumulate ? Vector128.Load(c3) : z, x31 = accumulate ? Vector128.Load(c3 + 4) : z;
         Vector128<float> x32 = accumulate ? Vector128.Load(c3 + 8) : z, x33 = accumulate ? Vector128.Load(c3 + 12) : z;
-        for (int p = 0; p < k; p++)
+        byte* bRow = bp;
+        for (int p = 0; p < k; p++, bRow += TPanel.RowBytes)
         {
-            byte* bRow = bp + ((long)p * TPanel.RowBytes);
             Vector128<float> b0 = TPanel.Load128(bRow, u, 0), b1 = TPanel.Load128(bRow, u, 1);
             Vector128<float> b2 = TPanel.Load128(bRow, u, 2), b3 = TPanel.Load128(bRow, u, 3);
             Vector128<float> v = Vector128.Create(a0[p]);
@@ -383,16 +403,17 @@ internal static unsafe partial class CpuKernels
     }
 
     /// <summary>
-    /// A 6 × 16 tile (quarter <paramref name="u"/> of a panel) in 256-bit vectors: 12 accumulators, 2 panel loads and
+    /// A 6 × 16 tile (quarter <typeparamref name="TQuarter"/> of a panel) in 256-bit vectors: 12 accumulators, 2 panel loads and
     /// 6 broadcasts per k, 15 registers in all, so it fits the 16 that AVX2 has without AVX-512 (a 3 × 32 tile needs 17
     /// and spilled there, at about 40 % of the FMA peak).
     /// </summary>
     [MethodImpl(MethodImplOptions.AggressiveOptimization)]
-    private static void MicroVector256<TPanel>(float** rows, byte* bp, int u, int k, float* bias, float* c, int ldc, bool accumulate)
+    private static void MicroVector256<TPanel, TQuarter>(float** rows, byte* bp, int k, float* bias, float* c, int ldc, bool accumulate)
         where TPanel : struct, IPanelRow
+        where TQuarter : struct, IQuarter
     {
         // Columns 16u … 16u + 15 are loads 2(u & 1) and 2(u & 1) + 1 of half u >> 1.
-        int h = u >> 1, q = 2 * (u & 1);
+        int h = TQuarter.U >> 1, q = 2 * (TQuarter.U & 1);
         float* a0 = rows[0], a1 = rows[1], a2 = rows[2], a3 = rows[3], a4 = rows[4], a5 = rows[5];
         float* c0 = c, c1 = c + ldc, c2 = c + (2L * ldc), c3 = c + (3L * ldc), c4 = c + (4L * ldc), c5 = c + (5L * ldc);
         Vector256<float> z = Vector256<float>.Zero;
@@ -402,9 +423,9 @@ internal static unsafe partial class CpuKernels
         Vector256<float> x30 = accumulate ? Vector256.Load(c3) : z, x31 = accumulate ? Vector256.Load(c3 + 8) : z;
         Vector256<float> x40 = accumulate ? Vector256.Load(c4) : z, x41 = accumulate ? Vector256.Load(c4 + 8) : z;
         Vector256<float> x50 = accumulate ? Vector256.Load(c5) : z, x51 = accumulate ? Vector256.Load(c5 + 8) : z;
-        for (int p = 0; p < k; p++)
+        byte* bRow = bp;
+        for (int p = 0; p < k; p++, bRow += TPanel.RowBytes)
         {
-            byte* bRow = bp + ((long)p * TPanel.RowBytes);
             Vector256<float> b0 = TPanel.Load256(bRow, h, q), b1 = TPanel.Load256(bRow, h, q + 1);
             Vector256<float> v = Vector256.Create(a0[p]);
             x00 = Vector256.FusedMultiplyAdd(v, b0, x00); x01 = Vector256.FusedMultiplyAdd(v, b1, x01);

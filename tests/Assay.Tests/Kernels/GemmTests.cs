@@ -51,7 +51,7 @@ public sealed class GemmTests
     public void Each_row_is_independent_of_the_batch_and_the_threads(KernelVariant variant)
     {
         // Row r of C must be bit-identical whether computed alone or among 300 rows (split over threads). K = 600
-        // spans three depth blocks: among 300 rows the full tiles run block by block through C, alone the row is a
+        // spans five depth blocks: among 300 rows the full tiles run block by block through C, alone the row is a
         // ragged tile that runs in one pass, so this also checks that blocking keeps each chain's bits.
         var rng = new DeterministicRandom(9);
         int m = 300, k = 600, n = 150;
